@@ -12,17 +12,17 @@ namespace veq {
 
 /// What went wrong, coarsely; stored in the database, so append only.
 enum class ErrorKind : int {
-  invalid_input = 1,    ///< bad value or file given by the user
-  timeout = 2,          ///< a device did not answer before its deadline
-  garbled = 3,          ///< bytes arrived but could not be parsed (checksum, syntax)
-  device_refused = 4,   ///< the device answered with an error reply
-  disconnected = 5,     ///< the line is closed or the device is gone
-  io = 6,               ///< operating-system I/O failure
-  storage = 7,          ///< database failure
-  no_convergence = 8,   ///< a numerical solver did not converge
-  aborted = 9,          ///< stopped on request
-  device_fault = 10,    ///< the device reported a fault in its status (stalled, empty)
-  not_found = 11,       ///< a run, file or record does not exist
+  invalid_input = 1,   ///< bad value or file given by the user
+  timeout = 2,         ///< a device did not answer before its deadline
+  garbled = 3,         ///< bytes arrived but could not be parsed (checksum, syntax)
+  device_refused = 4,  ///< the device answered with an error reply
+  disconnected = 5,    ///< the line is closed or the device is gone
+  io = 6,              ///< operating-system I/O failure
+  storage = 7,         ///< database failure
+  no_convergence = 8,  ///< a numerical solver did not converge
+  aborted = 9,         ///< stopped on request
+  device_fault = 10,   ///< the device reported a fault in its status (stalled, empty)
+  not_found = 11,      ///< a run, file or record does not exist
 };
 
 /// A short, stable name for an error kind ("timeout", "garbled", ...).
@@ -52,7 +52,7 @@ class VeqException : public std::runtime_error {
 template <typename T>
 class [[nodiscard]] Result {
  public:
-  Result(T value) : state_(std::in_place_index<0>, std::move(value)) {}  // NOLINT implicit
+  Result(T value) : state_(std::in_place_index<0>, std::move(value)) {}      // NOLINT implicit
   Result(Error error) : state_(std::in_place_index<1>, std::move(error)) {}  // NOLINT implicit
 
   bool has_value() const noexcept { return state_.index() == 0; }
@@ -77,13 +77,15 @@ class [[nodiscard]] Result {
   const T& operator*() const& { return value(); }
 
   const Error& error() const {
-    if (has_value()) throw std::logic_error("Result::error() called on a value");
+    if (has_value())
+      throw std::logic_error("Result::error() called on a value");
     return std::get<1>(state_);
   }
 
  private:
   void check() const {
-    if (!has_value()) throw VeqException(std::get<1>(state_));
+    if (!has_value())
+      throw VeqException(std::get<1>(state_));
   }
   std::variant<T, Error> state_;
 };
@@ -98,10 +100,12 @@ class [[nodiscard]] Result<void> {
   bool has_value() const noexcept { return !failed_; }
   explicit operator bool() const noexcept { return !failed_; }
   void value() const {
-    if (failed_) throw VeqException(error_);
+    if (failed_)
+      throw VeqException(error_);
   }
   const Error& error() const {
-    if (!failed_) throw std::logic_error("Result::error() called on a success");
+    if (!failed_)
+      throw std::logic_error("Result::error() called on a success");
     return error_;
   }
 
@@ -117,17 +121,28 @@ inline Error make_error(ErrorKind kind, std::string message) {
 
 inline const char* error_kind_name(ErrorKind kind) noexcept {
   switch (kind) {
-    case ErrorKind::invalid_input: return "invalid input";
-    case ErrorKind::timeout: return "timeout";
-    case ErrorKind::garbled: return "garbled reply";
-    case ErrorKind::device_refused: return "device refused";
-    case ErrorKind::disconnected: return "disconnected";
-    case ErrorKind::io: return "i/o error";
-    case ErrorKind::storage: return "storage error";
-    case ErrorKind::no_convergence: return "no convergence";
-    case ErrorKind::aborted: return "aborted";
-    case ErrorKind::device_fault: return "device fault";
-    case ErrorKind::not_found: return "not found";
+    case ErrorKind::invalid_input:
+      return "invalid input";
+    case ErrorKind::timeout:
+      return "timeout";
+    case ErrorKind::garbled:
+      return "garbled reply";
+    case ErrorKind::device_refused:
+      return "device refused";
+    case ErrorKind::disconnected:
+      return "disconnected";
+    case ErrorKind::io:
+      return "i/o error";
+    case ErrorKind::storage:
+      return "storage error";
+    case ErrorKind::no_convergence:
+      return "no convergence";
+    case ErrorKind::aborted:
+      return "aborted";
+    case ErrorKind::device_fault:
+      return "device fault";
+    case ErrorKind::not_found:
+      return "not found";
   }
   return "error";
 }

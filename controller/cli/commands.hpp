@@ -1,0 +1,13 @@
+// The `veq` command line: each command group registers itself on the app.
+#pragma once
+
+#include <CLI/CLI.hpp>
+
+namespace veq::cli {
+
+/// `veq demo`: an unattended series on simulated instruments in virtual time.
+void add_demo_command(CLI::App& app);
+/// `veq runs`: list stored runs; `veq show`: one run with its points.
+void add_store_commands(CLI::App& app);
+
+}  // namespace veq::cli

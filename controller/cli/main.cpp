@@ -1,0 +1,30 @@
+// veq: controller and endpoint finder for complexometric titrations.
+#include <exception>
+#include <iostream>
+
+#include "common/result.hpp"
+#include "common/version.hpp"
+#include "controller/cli/commands.hpp"
+
+int main(int argc, char** argv) {
+  CLI::App app{
+      "veq: automatic complexometric titrations of metal ions.\n"
+      "Drives a motor burette and an electrode, titrates, finds the endpoint, computes the\n"
+      "result and keeps every raw point in an SQLite file (default ./veq.sqlite, or $VEQ_DB)."};
+  app.set_version_flag("--version", std::string("veq ") + veq::kVersion);
+  app.require_subcommand(1);
+  veq::cli::add_demo_command(app);
+  veq::cli::add_store_commands(app);
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    return app.exit(e);
+  } catch (const veq::VeqException& e) {
+    std::cerr << "veq: " << e.what() << "\n";
+    return 1;
+  } catch (const std::exception& e) {
+    std::cerr << "veq: " << e.what() << "\n";
+    return 1;
+  }
+  return 0;
+}

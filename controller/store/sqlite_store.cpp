@@ -1,0 +1,532 @@
+#include "controller/store/sqlite_store.hpp"
+
+#include <sqlite3.h>
+
+#include <chrono>
+#include <cstdlib>
+#include <ctime>
+#include <filesystem>
+#include <utility>
+
+#include "common/version.hpp"
+
+namespace veq::store {
+
+namespace {
+
+// 'veq!' in ASCII: marks a file as a veq store (PRAGMA application_id).
+constexpr int kApplicationId = 0x76657121;
+
+// Migration k (1-based) brings a file from schema k-1 to schema k. Never edit
+// a released migration: append a new one. A migration that rebuilds the points
+// table must recreate the triggers that keep raw points unchangeable.
+constexpr const char* kMigrations[] = {
+    // 1: runs, raw points (append-only), evaluations, endpoints, results.
+    R"sql(
+CREATE TABLE runs (
+  id INTEGER PRIMARY KEY,
+  sample_id TEXT NOT NULL,
+  series TEXT NOT NULL DEFAULT '',
+  method_name TEXT NOT NULL,
+  method_json TEXT NOT NULL,
+  signal_kind INTEGER NOT NULL,
+  sample_volume_ml REAL NOT NULL,
+  titrant_name TEXT NOT NULL DEFAULT '',
+  titrant_conc_mol_per_l REAL NOT NULL,
+  burette TEXT NOT NULL DEFAULT '',
+  sensor TEXT NOT NULL DEFAULT '',
+  software_version TEXT NOT NULL,
+  started_utc TEXT NOT NULL,
+  finished_utc TEXT NOT NULL DEFAULT '',
+  status INTEGER NOT NULL,
+  end_reason TEXT NOT NULL DEFAULT ''
+);
+CREATE TABLE points (
+  run_id INTEGER NOT NULL REFERENCES runs(id),
+  idx INTEGER NOT NULL,
+  time_s REAL NOT NULL,
+  volume_ml REAL NOT NULL,
+  signal REAL NOT NULL,
+  temperature_c REAL NOT NULL,
+  drift_per_min REAL NOT NULL,
+  settle_s REAL NOT NULL,
+  PRIMARY KEY (run_id, idx)
+) WITHOUT ROWID;
+CREATE TRIGGER points_are_unchangeable BEFORE UPDATE ON points
+BEGIN SELECT RAISE(ABORT, 'raw points cannot be changed'); END;
+CREATE TRIGGER points_are_undeletable BEFORE DELETE ON points
+BEGIN SELECT RAISE(ABORT, 'raw points cannot be deleted'); END;
+CREATE TABLE evaluations (
+  id INTEGER PRIMARY KEY,
+  run_id INTEGER NOT NULL REFERENCES runs(id),
+  method TEXT NOT NULL,
+  options_json TEXT NOT NULL,
+  flags TEXT NOT NULL DEFAULT '',
+  software_version TEXT NOT NULL,
+  created_utc TEXT NOT NULL
+);
+CREATE TABLE endpoints (
+  evaluation_id INTEGER NOT NULL REFERENCES evaluations(id),
+  idx INTEGER NOT NULL,
+  volume_ml REAL NOT NULL,
+  uncertainty_ml REAL NOT NULL,
+  signal REAL NOT NULL,
+  steepness REAL NOT NULL,
+  flags TEXT NOT NULL DEFAULT '',
+  PRIMARY KEY (evaluation_id, idx)
+) WITHOUT ROWID;
+CREATE TABLE results (
+  id INTEGER PRIMARY KEY,
+  run_id INTEGER NOT NULL REFERENCES runs(id),
+  evaluation_id INTEGER REFERENCES evaluations(id),
+  name TEXT NOT NULL,
+  value REAL NOT NULL,
+  unit TEXT NOT NULL,
+  created_utc TEXT NOT NULL
+);
+CREATE INDEX evaluations_by_run ON evaluations(run_id);
+CREATE INDEX results_by_run ON results(run_id);
+)sql",
+};
+constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
+static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");
+
+/// A prepared statement that finalizes itself.
+class Statement {
+ public:
+  Statement(sqlite3* db, const char* sql) : db_(db) {
+    rc_ = sqlite3_prepare_v2(db, sql, -1, &stmt_, nullptr);
+  }
+  ~Statement() { sqlite3_finalize(stmt_); }
+  Statement(const Statement&) = delete;
+  Statement& operator=(const Statement&) = delete;
+
+  bool ok() const { return rc_ == SQLITE_OK; }
+  Statement& bind(int i, std::int64_t v) {
+    sqlite3_bind_int64(stmt_, i, v);
+    return *this;
+  }
+  Statement& bind(int i, int v) {
+    sqlite3_bind_int(stmt_, i, v);
+    return *this;
+  }
+  Statement& bind(int i, double v) {
+    sqlite3_bind_double(stmt_, i, v);
+    return *this;
+  }
+  Statement& bind(int i, const std::string& v) {
+    sqlite3_bind_text(stmt_, i, v.data(), static_cast<int>(v.size()), SQLITE_TRANSIENT);
+    return *this;
+  }
+  /// SQLITE_ROW, SQLITE_DONE or an error code.
+  int step() { return sqlite3_step(stmt_); }
+  std::int64_t integer(int col) const { return sqlite3_column_int64(stmt_, col); }
+  double real(int col) const { return sqlite3_column_double(stmt_, col); }
+  std::string text(int col) const {
+    const auto* p = sqlite3_column_text(stmt_, col);
+    return p ? std::string(reinterpret_cast<const char*>(p)) : std::string();
+  }
+
+ private:
+  sqlite3* db_;
+  sqlite3_stmt* stmt_ = nullptr;
+  int rc_;
+};
+
+const char* kRunColumns =
+    "id, sample_id, series, method_name, method_json, signal_kind, sample_volume_ml, "
+    "titrant_name, titrant_conc_mol_per_l, burette, sensor, software_version, started_utc, "
+    "finished_utc, status, end_reason, (SELECT COUNT(*) FROM points WHERE run_id = runs.id)";
+
+RunRecord read_run(const Statement& s) {
+  RunRecord r;
+  r.id = s.integer(0);
+  r.run.sample_id = s.text(1);
+  r.run.series = s.text(2);
+  r.run.method_name = s.text(3);
+  r.run.method_json = s.text(4);
+  r.run.signal_kind = static_cast<int>(s.integer(5));
+  r.run.sample_volume_ml = s.real(6);
+  r.run.titrant_name = s.text(7);
+  r.run.titrant_conc_mol_per_l = s.real(8);
+  r.run.burette = s.text(9);
+  r.run.sensor = s.text(10);
+  r.software_version = s.text(11);
+  r.started_utc = s.text(12);
+  r.finished_utc = s.text(13);
+  r.status = static_cast<RunStatus>(s.integer(14));
+  r.end_reason = s.text(15);
+  r.point_count = s.integer(16);
+  return r;
+}
+
+}  // namespace
+
+const char* run_status_name(RunStatus status) {
+  switch (status) {
+    case RunStatus::running:
+      return "running";
+    case RunStatus::completed:
+      return "completed";
+    case RunStatus::failed:
+      return "failed";
+    case RunStatus::aborted:
+      return "aborted";
+    case RunStatus::interrupted:
+      return "interrupted";
+    case RunStatus::imported:
+      return "imported";
+  }
+  return "unknown";
+}
+
+std::string default_database_path() {
+  if (const char* env = std::getenv("VEQ_DB"); env && *env)
+    return env;
+  return "veq.sqlite";
+}
+
+std::string utc_now_iso8601() {
+  const auto now = std::chrono::system_clock::now();
+  const std::time_t t = std::chrono::system_clock::to_time_t(now);
+  const auto ms =
+      std::chrono::duration_cast<std::chrono::milliseconds>(now.time_since_epoch()).count() % 1000;
+  std::tm tm{};
+  gmtime_r(&t, &tm);
+  char buffer[40];
+  std::strftime(buffer, sizeof buffer, "%Y-%m-%dT%H:%M:%S", &tm);
+  char out[48];
+  std::snprintf(out, sizeof out, "%s.%03dZ", buffer, static_cast<int>(ms));
+  return out;
+}
+
+SqliteStore::SqliteStore(sqlite3* db, std::string path) : db_(db), path_(std::move(path)) {}
+
+SqliteStore::~SqliteStore() {
+  sqlite3_close_v2(db_);
+}
+
+Error SqliteStore::storage_error(const std::string& what) const {
+  return make_error(ErrorKind::storage, what + " in '" + path_ + "': " + sqlite3_errmsg(db_));
+}
+
+Result<void> SqliteStore::exec(const char* sql) {
+  char* message = nullptr;
+  if (sqlite3_exec(db_, sql, nullptr, nullptr, &message) != SQLITE_OK) {
+    std::string text = message ? message : "unknown error";
+    sqlite3_free(message);
+    return make_error(ErrorKind::storage, "database '" + path_ + "': " + text);
+  }
+  return {};
+}
+
+Result<int> SqliteStore::schema_version() {
+  Statement s(db_, "PRAGMA user_version");
+  if (!s.ok() || s.step() != SQLITE_ROW)
+    return storage_error("cannot read the schema version");
+  return static_cast<int>(s.integer(0));
+}
+
+Result<std::unique_ptr<SqliteStore>> SqliteStore::open(const std::string& path) {
+  sqlite3* db = nullptr;
+  const int rc =
+      sqlite3_open_v2(path.c_str(), &db, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE, nullptr);
+  if (rc != SQLITE_OK) {
+    std::string message = db ? sqlite3_errmsg(db) : "out of memory";
+    sqlite3_close_v2(db);
+    return make_error(ErrorKind::storage, "cannot open database '" + path + "': " + message);
+  }
+  std::unique_ptr<SqliteStore> store(new SqliteStore(db, path));
+  sqlite3_busy_timeout(db, 5000);
+  sqlite3_extended_result_codes(db, 1);
+
+  // Read what the file is before changing anything in it.
+  int application_id = 0;
+  int version = 0;
+  std::int64_t tables = 0;
+  {
+    Statement a(db, "PRAGMA application_id");
+    if (!a.ok() || a.step() != SQLITE_ROW) {
+      return make_error(ErrorKind::storage,
+                        "'" + path + "' is not a readable SQLite database: " + sqlite3_errmsg(db));
+    }
+    application_id = static_cast<int>(a.integer(0));
+    Statement v(db, "PRAGMA user_version");
+    v.step();
+    version = static_cast<int>(v.integer(0));
+    Statement t(db, "SELECT COUNT(*) FROM sqlite_schema");
+    if (!t.ok() || t.step() != SQLITE_ROW) {
+      return make_error(ErrorKind::storage,
+                        "'" + path + "' is not a readable SQLite database: " + sqlite3_errmsg(db));
+    }
+    tables = t.integer(0);
+  }
+  if (tables > 0 && application_id != kApplicationId) {
+    return make_error(
+        ErrorKind::invalid_input,
+        "'" + path + "' is an SQLite file but not a veq store; it was left unchanged");
+  }
+  if (version > kSchemaVersion) {
+    return make_error(ErrorKind::invalid_input,
+                      "'" + path + "' has schema version " + std::to_string(version) +
+                          ", newer than this veq (" + std::to_string(kSchemaVersion) +
+                          "); use a newer veq. The file was left unchanged");
+  }
+
+  // WAL: readers never block the writer and a crash leaves the file intact.
+  // synchronous=FULL: each commit is fsynced, so an acknowledged point survives
+  // a power cut, not only a killed process (about 0.4 ms per point here).
+  // foreign_keys: points, evaluations and results always belong to a run.
+  if (auto r = store->exec("PRAGMA journal_mode=WAL"); !r)
+    return r.error();
+  if (auto r = store->exec("PRAGMA synchronous=FULL"); !r)
+    return r.error();
+  if (auto r = store->exec("PRAGMA foreign_keys=ON"); !r)
+    return r.error();
+
+  for (int target = version + 1; target <= kSchemaVersion; ++target) {
+    if (auto r = store->exec("BEGIN IMMEDIATE"); !r)
+      return r.error();
+    auto applied = store->exec(kMigrations[target - 1]);
+    if (applied) {
+      const std::string pragmas = "PRAGMA user_version=" + std::to_string(target) +
+                                  "; PRAGMA application_id=" + std::to_string(kApplicationId);
+      applied = store->exec(pragmas.c_str());
+    }
+    if (!applied) {
+      (void)store->exec("ROLLBACK");
+      return make_error(ErrorKind::storage, "migration to schema " + std::to_string(target) +
+                                                " failed: " + applied.error().message);
+    }
+    if (auto r = store->exec("COMMIT"); !r)
+      return r.error();
+  }
+
+  // A run still "running" here was cut off by a crash or power loss.
+  {
+    Statement s(db,
+                "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3 "
+                "WHERE status = ?4");
+    s.bind(1, static_cast<int>(RunStatus::interrupted))
+        .bind(2, std::string("interrupted: veq stopped before the run ended"))
+        .bind(3, utc_now_iso8601())
+        .bind(4, static_cast<int>(RunStatus::running));
+    if (s.step() != SQLITE_DONE)
+      return store->storage_error("cannot mark interrupted runs");
+    store->interrupted_on_open_ = sqlite3_changes(db);
+  }
+  return store;
+}
+
+Result<std::int64_t> SqliteStore::begin_run(const NewRun& run) {
+  Statement s(db_,
+              "INSERT INTO runs (sample_id, series, method_name, method_json, signal_kind, "
+              "sample_volume_ml, titrant_name, titrant_conc_mol_per_l, burette, sensor, "
+              "software_version, started_utc, status) "
+              "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)");
+  s.bind(1, run.sample_id)
+      .bind(2, run.series)
+      .bind(3, run.method_name)
+      .bind(4, run.method_json)
+      .bind(5, run.signal_kind)
+      .bind(6, run.sample_volume_ml)
+      .bind(7, run.titrant_name)
+      .bind(8, run.titrant_conc_mol_per_l)
+      .bind(9, run.burette)
+      .bind(10, run.sensor)
+      .bind(11, std::string(kVersion))
+      .bind(12, utc_now_iso8601())
+      .bind(13, static_cast<int>(RunStatus::running));
+  if (s.step() != SQLITE_DONE)
+    return storage_error("cannot start run for '" + run.sample_id + "'");
+  return static_cast<std::int64_t>(sqlite3_last_insert_rowid(db_));
+}
+
+Result<void> SqliteStore::append_point(std::int64_t run_id, const PointRecord& p) {
+  // One statement in autocommit mode: committed (and fsynced) when step returns.
+  Statement s(db_,
+              "INSERT INTO points (run_id, idx, time_s, volume_ml, signal, temperature_c, "
+              "drift_per_min, settle_s) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)");
+  s.bind(1, run_id)
+      .bind(2, p.index)
+      .bind(3, p.time_s)
+      .bind(4, p.volume_ml)
+      .bind(5, p.signal)
+      .bind(6, p.temperature_c)
+      .bind(7, p.drift_per_min)
+      .bind(8, p.settle_s);
+  if (s.step() != SQLITE_DONE) {
+    return storage_error("cannot store point " + std::to_string(p.index) + " of run " +
+                         std::to_string(run_id));
+  }
+  return {};
+}
+
+Result<void> SqliteStore::finish_run(std::int64_t run_id, RunStatus status,
+                                     const std::string& reason) {
+  Statement s(db_, "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3 WHERE id = ?4");
+  s.bind(1, static_cast<int>(status)).bind(2, reason).bind(3, utc_now_iso8601()).bind(4, run_id);
+  if (s.step() != SQLITE_DONE)
+    return storage_error("cannot end run " + std::to_string(run_id));
+  if (sqlite3_changes(db_) != 1) {
+    return make_error(ErrorKind::not_found, "no run " + std::to_string(run_id) + " in " + path_);
+  }
+  return {};
+}
+
+Result<std::int64_t> SqliteStore::add_evaluation(std::int64_t run_id, const EvaluationRecord& e) {
+  if (auto r = exec("BEGIN IMMEDIATE"); !r)
+    return r.error();
+  auto fail = [&](const std::string& what) -> Result<std::int64_t> {
+    Error error = storage_error(what);
+    (void)exec("ROLLBACK");
+    return error;
+  };
+  Statement s(db_,
+              "INSERT INTO evaluations (run_id, method, options_json, flags, software_version, "
+              "created_utc) VALUES (?1, ?2, ?3, ?4, ?5, ?6)");
+  s.bind(1, run_id)
+      .bind(2, e.method)
+      .bind(3, e.options_json)
+      .bind(4, e.flags)
+      .bind(5, std::string(kVersion))
+      .bind(6, utc_now_iso8601());
+  if (s.step() != SQLITE_DONE)
+    return fail("cannot add an evaluation to run " + std::to_string(run_id));
+  const std::int64_t id = sqlite3_last_insert_rowid(db_);
+  for (std::size_t i = 0; i < e.endpoints.size(); ++i) {
+    const auto& p = e.endpoints[i];
+    Statement ep(db_,
+                 "INSERT INTO endpoints (evaluation_id, idx, volume_ml, uncertainty_ml, signal, "
+                 "steepness, flags) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)");
+    ep.bind(1, id)
+        .bind(2, static_cast<std::int64_t>(i))
+        .bind(3, p.volume_ml)
+        .bind(4, p.uncertainty_ml)
+        .bind(5, p.signal)
+        .bind(6, p.steepness)
+        .bind(7, p.flags);
+    if (ep.step() != SQLITE_DONE)
+      return fail("cannot store endpoint " + std::to_string(i));
+  }
+  if (auto r = exec("COMMIT"); !r)
+    return r.error();
+  return id;
+}
+
+Result<std::int64_t> SqliteStore::add_result(const ResultRecord& r) {
+  Statement s(db_,
+              "INSERT INTO results (run_id, evaluation_id, name, value, unit, created_utc) "
+              "VALUES (?1, ?2, ?3, ?4, ?5, ?6)");
+  s.bind(1, r.run_id).bind(3, r.name).bind(4, r.value).bind(5, r.unit).bind(6, utc_now_iso8601());
+  if (r.evaluation_id > 0)
+    s.bind(2, r.evaluation_id);
+  if (s.step() != SQLITE_DONE)
+    return storage_error("cannot store result '" + r.name + "'");
+  return static_cast<std::int64_t>(sqlite3_last_insert_rowid(db_));
+}
+
+Result<RunRecord> SqliteStore::load_run(std::int64_t run_id) {
+  const std::string sql = std::string("SELECT ") + kRunColumns + " FROM runs WHERE id = ?1";
+  Statement s(db_, sql.c_str());
+  s.bind(1, run_id);
+  const int rc = s.step();
+  if (rc == SQLITE_DONE) {
+    return make_error(ErrorKind::not_found, "no run " + std::to_string(run_id) + " in " + path_);
+  }
+  if (rc != SQLITE_ROW)
+    return storage_error("cannot read run " + std::to_string(run_id));
+  return read_run(s);
+}
+
+Result<std::vector<RunRecord>> SqliteStore::list_runs() {
+  const std::string sql = std::string("SELECT ") + kRunColumns + " FROM runs ORDER BY id";
+  Statement s(db_, sql.c_str());
+  std::vector<RunRecord> out;
+  int rc;
+  while ((rc = s.step()) == SQLITE_ROW)
+    out.push_back(read_run(s));
+  if (rc != SQLITE_DONE)
+    return storage_error("cannot list runs");
+  return out;
+}
+
+Result<std::vector<PointRecord>> SqliteStore::load_points(std::int64_t run_id) {
+  Statement s(db_,
+              "SELECT idx, time_s, volume_ml, signal, temperature_c, drift_per_min, settle_s "
+              "FROM points WHERE run_id = ?1 ORDER BY idx");
+  s.bind(1, run_id);
+  std::vector<PointRecord> out;
+  int rc;
+  while ((rc = s.step()) == SQLITE_ROW) {
+    PointRecord p;
+    p.index = s.integer(0);
+    p.time_s = s.real(1);
+    p.volume_ml = s.real(2);
+    p.signal = s.real(3);
+    p.temperature_c = s.real(4);
+    p.drift_per_min = s.real(5);
+    p.settle_s = s.real(6);
+    out.push_back(p);
+  }
+  if (rc != SQLITE_DONE)
+    return storage_error("cannot read points of run " + std::to_string(run_id));
+  return out;
+}
+
+Result<std::vector<EvaluationRecord>> SqliteStore::load_evaluations(std::int64_t run_id) {
+  Statement s(db_,
+              "SELECT id, method, options_json, flags, created_utc FROM evaluations "
+              "WHERE run_id = ?1 ORDER BY id");
+  s.bind(1, run_id);
+  std::vector<EvaluationRecord> out;
+  int rc;
+  while ((rc = s.step()) == SQLITE_ROW) {
+    EvaluationRecord e;
+    e.id = s.integer(0);
+    e.run_id = run_id;
+    e.method = s.text(1);
+    e.options_json = s.text(2);
+    e.flags = s.text(3);
+    e.created_utc = s.text(4);
+    out.push_back(std::move(e));
+  }
+  if (rc != SQLITE_DONE)
+    return storage_error("cannot read evaluations");
+  for (auto& e : out) {
+    Statement p(db_,
+                "SELECT volume_ml, uncertainty_ml, signal, steepness, flags FROM endpoints "
+                "WHERE evaluation_id = ?1 ORDER BY idx");
+    p.bind(1, e.id);
+    while ((rc = p.step()) == SQLITE_ROW) {
+      e.endpoints.push_back(EndpointRecord{p.real(0), p.real(1), p.real(2), p.real(3), p.text(4)});
+    }
+    if (rc != SQLITE_DONE)
+      return storage_error("cannot read endpoints");
+  }
+  return out;
+}
+
+Result<std::vector<ResultRecord>> SqliteStore::load_results(std::int64_t run_id) {
+  Statement s(db_,
+              "SELECT id, IFNULL(evaluation_id, 0), name, value, unit FROM results "
+              "WHERE run_id = ?1 ORDER BY id");
+  s.bind(1, run_id);
+  std::vector<ResultRecord> out;
+  int rc;
+  while ((rc = s.step()) == SQLITE_ROW) {
+    ResultRecord r;
+    r.id = s.integer(0);
+    r.run_id = run_id;
+    r.evaluation_id = s.integer(1);
+    r.name = s.text(2);
+    r.value = s.real(3);
+    r.unit = s.text(4);
+    out.push_back(std::move(r));
+  }
+  if (rc != SQLITE_DONE)
+    return storage_error("cannot read results");
+  return out;
+}
+
+}  // namespace veq::store

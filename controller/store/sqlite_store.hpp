@@ -1,0 +1,61 @@
+// The run store in one SQLite file (schema and settings in docs/store.md).
+#pragma once
+
+#include <memory>
+#include <string>
+
+#include "controller/store/run_store.hpp"
+
+struct sqlite3;
+
+namespace veq::store {
+
+/// Schema version this build writes; older files are migrated on open.
+inline constexpr int kSchemaVersion = 1;
+
+/// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
+std::string default_database_path();
+
+class SqliteStore final : public RunStore {
+ public:
+  /// Opens (creating if absent) and migrates a store. Refuses a file that is
+  /// not a veq store, or that was written by a newer schema, without touching it.
+  static Result<std::unique_ptr<SqliteStore>> open(const std::string& path);
+  ~SqliteStore() override;
+  SqliteStore(const SqliteStore&) = delete;
+  SqliteStore& operator=(const SqliteStore&) = delete;
+
+  Result<std::int64_t> begin_run(const NewRun& run) override;
+  Result<void> append_point(std::int64_t run_id, const PointRecord& point) override;
+  Result<void> finish_run(std::int64_t run_id, RunStatus status,
+                          const std::string& reason) override;
+  Result<std::int64_t> add_evaluation(std::int64_t run_id,
+                                      const EvaluationRecord& evaluation) override;
+  Result<std::int64_t> add_result(const ResultRecord& result) override;
+
+  Result<RunRecord> load_run(std::int64_t run_id) override;
+  Result<std::vector<RunRecord>> list_runs() override;
+  Result<std::vector<PointRecord>> load_points(std::int64_t run_id) override;
+  Result<std::vector<EvaluationRecord>> load_evaluations(std::int64_t run_id) override;
+  Result<std::vector<ResultRecord>> load_results(std::int64_t run_id) override;
+
+  /// Runs still marked running when the store was opened, now marked interrupted.
+  int interrupted_on_open() const { return interrupted_on_open_; }
+  const std::string& path() const { return path_; }
+  /// Schema version of the open file.
+  Result<int> schema_version();
+
+ private:
+  SqliteStore(sqlite3* db, std::string path);
+  Result<void> exec(const char* sql);
+  Error storage_error(const std::string& what) const;
+
+  sqlite3* db_;
+  std::string path_;
+  int interrupted_on_open_ = 0;
+};
+
+/// Current time as ISO 8601 UTC with milliseconds ("2026-12-02T01:48:22.123Z").
+std::string utc_now_iso8601();
+
+}  // namespace veq::store

@@ -1,0 +1,56 @@
+#include "drivers/device_link.hpp"
+
+#include <utility>
+
+namespace veq::drivers {
+
+DeviceLink::DeviceLink(Transport& transport, Clock& clock, std::string device_name,
+                       LinkOptions options)
+    : transport_(transport), clock_(clock), name_(std::move(device_name)), options_(options) {}
+
+Result<protocol::Message> DeviceLink::call(protocol::Message request) {
+  request.sequence = next_sequence_;
+  next_sequence_ = next_sequence_ >= 65535 ? 1 : next_sequence_ + 1;
+  const std::string command = request.word;
+  auto where = [&] { return describe() + " ('" + command + "')"; };
+
+  if (auto sent = transport_.write_all(protocol::encode(request), options_.reply_timeout); !sent) {
+    return make_error(sent.error().kind, where() + ": " + sent.error().message);
+  }
+  const Duration deadline = clock_.now() + options_.reply_timeout;
+  while (true) {
+    const auto left =
+        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - clock_.now());
+    if (left.count() <= 0) {
+      return make_error(
+          ErrorKind::timeout,
+          where() + ": no reply within " + std::to_string(options_.reply_timeout.count()) + " ms");
+    }
+    auto line = transport_.read_line(left);
+    if (!line) {
+      transport_.discard_input();
+      return make_error(line.error().kind, where() + ": " + line.error().message);
+    }
+    auto reply = protocol::parse(*line);
+    if (!reply) {
+      transport_.discard_input();
+      return make_error(ErrorKind::garbled, where() + ": " + reply.error().message);
+    }
+    if (reply->sequence != request.sequence)
+      continue;  // a late answer to an earlier request
+    if (reply->word == "error") {
+      auto reason = reply->find("reason");
+      auto text = reply->find("message");
+      return make_error(ErrorKind::device_refused,
+                        where() + ": " + std::string(reason ? *reason : "unknown") +
+                            (text ? " (" + std::string(*text) + ")" : std::string()));
+    }
+    if (reply->word != "ok") {
+      return make_error(ErrorKind::garbled,
+                        where() + ": reply word '" + reply->word + "' is neither 'ok' nor 'error'");
+    }
+    return std::move(reply).value();
+  }
+}
+
+}  // namespace veq::drivers

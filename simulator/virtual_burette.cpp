@@ -1,0 +1,224 @@
+#include "simulator/virtual_burette.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+namespace veq::simulator {
+
+namespace protocol = drivers::protocol;
+using drivers::Duration;
+
+namespace {
+// Default host-silence stop of a veq instrument before the host sets its own
+// (docs/protocol.md): 10 s.
+constexpr double kDefaultHostSilenceS = 10.0;
+}  // namespace
+
+VirtualBurette::VirtualBurette(const BuretteSpec& spec, drivers::Clock& clock, std::uint64_t seed)
+    : VirtualDevice(clock, seed),
+      spec_(spec),
+      step_ml_(spec.cylinder_ml / spec.steps_per_cylinder),
+      cylinder_content_ml_(spec.cylinder_ml),
+      host_silence_limit_(drivers::from_seconds(kDefaultHostSilenceS)) {}
+
+Duration VirtualBurette::motion_end(std::string* why) const {
+  const Duration planned =
+      motion_.start + drivers::from_seconds(motion_.volume_ml / motion_.rate_ml_per_min * 60.0);
+  Duration end = planned;
+  std::string reason = "completed";
+  if (motion_.kind == MotionKind::dose && motion_.time_limit > Duration::zero() &&
+      motion_.start + motion_.time_limit < end) {
+    end = motion_.start + motion_.time_limit;
+    reason = "time_limit";
+  }
+  // The safeguard an instrument built for veq keeps: no word from the host for
+  // the silence limit and the motor stops by itself.
+  if (host_silence_limit_ > Duration::zero() && last_contact_ + host_silence_limit_ < end) {
+    end = std::max(motion_.start, last_contact_ + host_silence_limit_);
+    reason = "host_silence";
+  }
+  if (why)
+    *why = reason;
+  return end;
+}
+
+double VirtualBurette::moved_at(Duration t) const {
+  if (motion_.kind == MotionKind::none)
+    return 0.0;
+  const Duration end = motion_end(nullptr);
+  const Duration until = std::min(t, end);
+  if (until <= motion_.start)
+    return 0.0;
+  double moved = motion_.rate_ml_per_min * drivers::to_seconds(until - motion_.start) / 60.0;
+  moved = std::min(moved, motion_.volume_ml);
+  return std::floor(moved / step_ml_ + 1e-9) * step_ml_;
+}
+
+bool VirtualBurette::moving() const {
+  return motion_.kind != MotionKind::none && clock_.now() < motion_end(nullptr);
+}
+
+double VirtualBurette::true_delivered_ml() const {
+  double total = true_total_ml_;
+  if (motion_.kind == MotionKind::dose) {
+    const double moved = moved_at(clock_.now());
+    const double fraction = motion_.volume_ml > 0.0 ? moved / motion_.volume_ml : 0.0;
+    total +=
+        moved * (1.0 + spec_.systematic_error_percent / 100.0) + fraction * motion_.dose_error_ml;
+  }
+  return total;
+}
+
+double VirtualBurette::counter_ml() const {
+  double c = counter_ml_;
+  if (motion_.kind == MotionKind::dose)
+    c += moved_at(clock_.now());
+  return c;
+}
+
+void VirtualBurette::update() {
+  if (motion_.kind == MotionKind::none)
+    return;
+  std::string why;
+  const Duration end = motion_end(&why);
+  if (clock_.now() < end)
+    return;
+  finish_motion(moved_at(end), why);
+}
+
+void VirtualBurette::finish_motion(double moved_ml, const std::string& why) {
+  if (motion_.kind == MotionKind::dose) {
+    const double fraction = motion_.volume_ml > 0.0 ? moved_ml / motion_.volume_ml : 0.0;
+    counter_ml_ += moved_ml;
+    true_total_ml_ += moved_ml * (1.0 + spec_.systematic_error_percent / 100.0) +
+                      fraction * motion_.dose_error_ml;
+    cylinder_content_ml_ -= moved_ml;
+  } else if (motion_.kind == MotionKind::fill) {
+    cylinder_content_ml_ += moved_ml;
+    spec_.reservoir_ml -= moved_ml;
+  }
+  last_stop_ = why;
+  motion_ = Motion{};
+}
+
+protocol::Message VirtualBurette::status_reply(std::uint32_t sequence) const {
+  protocol::Message m = protocol::ok_reply(sequence);
+  const char* state = "idle";
+  double content = cylinder_content_ml_;
+  if (motion_.kind == MotionKind::dose) {
+    state = "dosing";
+    content -= moved_at(clock_.now());
+  } else if (motion_.kind == MotionKind::fill) {
+    state = "filling";
+    content += moved_at(clock_.now());
+  }
+  m.add("state", state);
+  m.add("cylinder_ml", content, 5);
+  m.add("delivered_ml", counter_ml(), 5);
+  m.add("last_stop", last_stop_);
+  m.add("fault", last_stop_ == "host_silence" ? "host_silent" : "none");
+  return m;
+}
+
+protocol::Message VirtualBurette::handle(const protocol::Message& request) {
+  update();
+  last_contact_ = clock_.now();
+  const auto seq = request.sequence;
+  const std::string& word = request.word;
+  if (word == "identify") {
+    protocol::Message m = protocol::ok_reply(seq);
+    m.add("role", "burette");
+    m.add("model", spec_.model);
+    m.add("protocol", std::to_string(protocol::kRevision));
+    m.add("cylinder_ml", spec_.cylinder_ml, 4);
+    m.add("steps_per_cylinder", spec_.steps_per_cylinder, 0);
+    m.add("max_rate_ml_per_min", spec_.max_rate_ml_per_min, 3);
+    m.add("max_dose_ml", spec_.max_dose_ml, 4);
+    return m;
+  }
+  if (word == "status")
+    return status_reply(seq);
+  if (word == "stop") {
+    // Stops at once: the motion ends where it is now.
+    if (motion_.kind != MotionKind::none)
+      finish_motion(moved_at(clock_.now()), "host");
+    return status_reply(seq);
+  }
+  if (word == "reset_counter") {
+    if (motion_.kind != MotionKind::none) {
+      return protocol::error_reply(seq, "busy", "cannot reset the counter while moving");
+    }
+    counter_ml_ = 0.0;
+    return protocol::ok_reply(seq);
+  }
+  if (word == "ping")
+    return protocol::ok_reply(seq);
+  if (word == "host_silence_limit") {
+    auto ms = request.number("ms");
+    if (!ms || *ms < 500.0 || *ms > 60000.0) {
+      return protocol::error_reply(seq, "bad_field", "ms must be a number from 500 to 60000");
+    }
+    host_silence_limit_ = drivers::from_seconds(*ms / 1000.0);
+    return protocol::ok_reply(seq);
+  }
+  if (word == "dose" || word == "fill") {
+    if (motion_.kind != MotionKind::none) {
+      return protocol::error_reply(seq, "busy", "the motor is still moving");
+    }
+    auto rate = request.number("rate_ml_per_min");
+    if (!rate || *rate <= 0.0) {
+      return protocol::error_reply(seq, "bad_field", "rate_ml_per_min must be a number > 0");
+    }
+    if (*rate > spec_.max_rate_ml_per_min * (1.0 + 1e-9)) {
+      return protocol::error_reply(seq, "over_limit",
+                                   "rate above the device maximum of " +
+                                       protocol::format_number(spec_.max_rate_ml_per_min, 3) +
+                                       " mL/min");
+    }
+    Motion m;
+    m.start = clock_.now();
+    m.rate_ml_per_min = *rate;
+    if (word == "dose") {
+      auto volume = request.number("volume_ml");
+      auto limit = request.number("limit_ms");
+      if (!volume || *volume <= 0.0) {
+        return protocol::error_reply(seq, "bad_field", "volume_ml must be a number > 0");
+      }
+      if (!limit || *limit <= 0.0) {
+        return protocol::error_reply(seq, "bad_field", "limit_ms must be a number > 0");
+      }
+      if (*volume > spec_.max_dose_ml * (1.0 + 1e-9)) {
+        return protocol::error_reply(seq, "over_limit",
+                                     "a single dose may not exceed " +
+                                         protocol::format_number(spec_.max_dose_ml, 4) + " mL");
+      }
+      if (*volume > cylinder_content_ml_ + 1e-9) {
+        return protocol::error_reply(seq, "empty",
+                                     "the cylinder holds only " +
+                                         protocol::format_number(cylinder_content_ml_, 4) +
+                                         " mL; fill first");
+      }
+      m.kind = MotionKind::dose;
+      m.volume_ml = std::round(*volume / step_ml_) * step_ml_;
+      m.time_limit = drivers::from_seconds(*limit / 1000.0);
+      if (spec_.random_error_ml > 0.0) {
+        std::normal_distribution<double> error(0.0, spec_.random_error_ml);
+        m.dose_error_ml = error(random_);
+      }
+    } else {
+      const double room = spec_.cylinder_ml - cylinder_content_ml_;
+      if (room > spec_.reservoir_ml) {
+        return protocol::error_reply(seq, "empty", "the titrant reservoir is empty");
+      }
+      m.kind = MotionKind::fill;
+      m.volume_ml = room;
+    }
+    if (m.volume_ml <= 0.0)
+      return protocol::ok_reply(seq);
+    motion_ = m;
+    return protocol::ok_reply(seq);
+  }
+  return protocol::error_reply(seq, "unknown_command", "no command '" + word + "'");
+}
+
+}  // namespace veq::simulator

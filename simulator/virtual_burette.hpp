@@ -1,0 +1,59 @@
+// A virtual motor burette: cylinder, step resolution, dosing time, systematic
+// and random delivery errors (hidden truths), and the device-side safeguards
+// of veq's protocol (dose volume and time limits, host-silence stop).
+#pragma once
+
+#include "simulator/virtual_device.hpp"
+
+namespace veq::simulator {
+
+class VirtualBurette final : public VirtualDevice {
+ public:
+  VirtualBurette(const BuretteSpec& spec, drivers::Clock& clock, std::uint64_t seed);
+
+  /// Titrant truly delivered into the vessel up to now, with the burette's
+  /// hidden errors (mL). Computed from the clock; changes no state.
+  double true_delivered_ml() const;
+  /// Volume the burette's own counter shows (steps times step volume, mL).
+  double counter_ml() const;
+  /// True while the motor moves (dose or fill) at the clock's present time.
+  bool moving() const;
+  /// How the last motion ended: "completed", "host", "time_limit", "host_silence".
+  const std::string& last_stop() const { return last_stop_; }
+
+ protected:
+  drivers::protocol::Message handle(const drivers::protocol::Message& request) override;
+
+ private:
+  enum class MotionKind { none, dose, fill };
+  struct Motion {
+    MotionKind kind = MotionKind::none;
+    drivers::Duration start{0};
+    double volume_ml = 0.0;
+    double rate_ml_per_min = 0.0;
+    drivers::Duration time_limit{0};
+    double dose_error_ml = 0.0;  ///< this dose's random error, spread over its motion
+  };
+
+  /// Ends the motion if it is over at the present time.
+  void update();
+  /// Books a motion that ended having moved moved_ml, and why it ended.
+  void finish_motion(double moved_ml, const std::string& why);
+  /// When the current motion stops, and why.
+  drivers::Duration motion_end(std::string* why) const;
+  /// Volume moved by the current motion at time t (mL, quantised to steps).
+  double moved_at(drivers::Duration t) const;
+  drivers::protocol::Message status_reply(std::uint32_t sequence) const;
+
+  BuretteSpec spec_;
+  double step_ml_;
+  double cylinder_content_ml_;
+  double counter_ml_ = 0.0;
+  double true_total_ml_ = 0.0;
+  Motion motion_;
+  std::string last_stop_ = "completed";
+  drivers::Duration last_contact_{0};
+  drivers::Duration host_silence_limit_;
+};
+
+}  // namespace veq::simulator

@@ -1,0 +1,73 @@
+#include "simulator/virtual_electrode.hpp"
+
+#include <cmath>
+#include <utility>
+
+namespace veq::simulator {
+
+namespace protocol = drivers::protocol;
+
+double nernst_slope_mv(double temperature_c) {
+  // R = 8.314462618 J/(mol K), F = 96485.33212 C/mol (CODATA 2018, exact SI).
+  constexpr double kR = 8.314462618;
+  constexpr double kF = 96485.33212;
+  return 1000.0 * kR * (temperature_c + 273.15) * std::log(10.0) / kF;
+}
+
+VirtualElectrode::VirtualElectrode(const ElectrodeSpec& spec,
+                                   const chemistry::OneToOneTitration& chemistry, int metal_charge,
+                                   drivers::Clock& clock, std::uint64_t seed,
+                                   std::function<double()> titrant_in_vessel_ml)
+    : VirtualDevice(clock, seed),
+      spec_(spec),
+      chemistry_(chemistry),
+      charge_(metal_charge),
+      titrant_in_vessel_ml_(std::move(titrant_in_vessel_ml)) {}
+
+double VirtualElectrode::equilibrium_potential_mv(double titrant_ml) const {
+  const double slope = nernst_slope_mv(spec_.temperature_c) * spec_.slope_percent / 100.0;
+  // E = E0 + (S / z) log10[M] = E0 - (S / z) pM for a cation-selective electrode.
+  return spec_.e0_mv - slope / charge_ * chemistry::p_metal(chemistry_, titrant_ml);
+}
+
+double VirtualElectrode::lagged_potential_mv() {
+  const double target = equilibrium_potential_mv(titrant_in_vessel_ml_());
+  const auto now = clock_.now();
+  if (!started_ || spec_.response_time_s <= 0.0) {
+    value_mv_ = target;
+  } else {
+    const double dt = drivers::to_seconds(now - last_time_);
+    value_mv_ = target + (value_mv_ - target) * std::exp(-dt / spec_.response_time_s);
+  }
+  started_ = true;
+  last_time_ = now;
+  return value_mv_;
+}
+
+protocol::Message VirtualElectrode::handle(const protocol::Message& request) {
+  const auto seq = request.sequence;
+  if (request.word == "identify") {
+    protocol::Message m = protocol::ok_reply(seq);
+    m.add("role", "potential_sensor");
+    m.add("model", spec_.model);
+    m.add("electrode", spec_.electrode);
+    m.add("protocol", std::to_string(protocol::kRevision));
+    return m;
+  }
+  if (request.word == "read") {
+    double e = lagged_potential_mv();
+    if (spec_.noise_mv > 0.0) {
+      std::normal_distribution<double> noise(0.0, spec_.noise_mv);
+      e += noise(random_);
+    }
+    protocol::Message m = protocol::ok_reply(seq);
+    m.add("potential_mv", e, 3);
+    m.add("temperature_c", spec_.temperature_c, 2);
+    return m;
+  }
+  if (request.word == "ping")
+    return protocol::ok_reply(seq);
+  return protocol::error_reply(seq, "unknown_command", "no command '" + request.word + "'");
+}
+
+}  // namespace veq::simulator

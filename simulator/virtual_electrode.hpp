@@ -1,0 +1,43 @@
+// A virtual metal-ion electrode with its meter: Nernstian response to the
+// free metal computed by the chemistry engine, temperature in the slope,
+// first-order response lag and seeded Gaussian noise.
+#pragma once
+
+#include <functional>
+
+#include "chemistry/one_to_one.hpp"
+#include "simulator/virtual_device.hpp"
+
+namespace veq::simulator {
+
+/// Nernst slope RT ln(10) / F in mV per decade at a temperature (°C), from the
+/// CODATA 2018 values of R and F.
+double nernst_slope_mv(double temperature_c);
+
+class VirtualElectrode final : public VirtualDevice {
+ public:
+  /// titrant_in_vessel_ml tells how much titrant has truly entered the vessel
+  /// at the clock's present time (the burette's hidden truth).
+  VirtualElectrode(const ElectrodeSpec& spec, const chemistry::OneToOneTitration& chemistry,
+                   int metal_charge, drivers::Clock& clock, std::uint64_t seed,
+                   std::function<double()> titrant_in_vessel_ml);
+
+  /// Noise-free equilibrium potential at a titrant volume in the vessel (mV).
+  double equilibrium_potential_mv(double titrant_ml) const;
+
+ protected:
+  drivers::protocol::Message handle(const drivers::protocol::Message& request) override;
+
+ private:
+  double lagged_potential_mv();
+
+  ElectrodeSpec spec_;
+  chemistry::OneToOneTitration chemistry_;
+  int charge_;
+  std::function<double()> titrant_in_vessel_ml_;
+  bool started_ = false;
+  double value_mv_ = 0.0;
+  drivers::Duration last_time_{0};
+};
+
+}  // namespace veq::simulator
