@@ -1,0 +1,202 @@
+// The SQLite run store: schema, migrations, append-only raw points, refusal
+// of foreign and newer files without touching them.
+#include <gtest/gtest.h>
+#include <sqlite3.h>
+
+#include <filesystem>
+#include <fstream>
+
+#include "controller/store/sqlite_store.hpp"
+
+namespace veq::store {
+namespace {
+
+namespace fs = std::filesystem;
+
+struct TempDir {
+  fs::path path;
+  TempDir() {
+    path = fs::temp_directory_path() /
+           ("veq-store-test-" + std::to_string(::testing::UnitTest::GetInstance()->random_seed()) +
+            "-" + ::testing::UnitTest::GetInstance()->current_test_info()->name());
+    fs::remove_all(path);
+    fs::create_directories(path);
+  }
+  ~TempDir() { fs::remove_all(path); }
+  std::string file(const char* name) const { return (path / name).string(); }
+};
+
+NewRun sample_run() {
+  NewRun r;
+  r.sample_id = "well-7";
+  r.method_name = "test method";
+  r.method_json = "{}";
+  r.sample_volume_ml = 25.0;
+  r.titrant_name = "EDTA";
+  r.titrant_conc_mol_per_l = 0.05;
+  return r;
+}
+
+int exec_raw(const std::string& path, const char* sql, std::string* error = nullptr) {
+  sqlite3* db = nullptr;
+  sqlite3_open(path.c_str(), &db);
+  char* message = nullptr;
+  const int rc = sqlite3_exec(db, sql, nullptr, nullptr, &message);
+  if (error && message)
+    *error = message;
+  sqlite3_free(message);
+  sqlite3_close(db);
+  return rc;
+}
+
+TEST(SqliteStore, CreatesSchemaAndRoundTripsARun) {
+  TempDir dir;
+  auto store = SqliteStore::open(dir.file("a.sqlite"));
+  ASSERT_TRUE(store.has_value()) << store.error().message;
+  EXPECT_EQ(*(*store)->schema_version(), kSchemaVersion);
+  auto id = (*store)->begin_run(sample_run());
+  ASSERT_TRUE(id.has_value());
+  for (int i = 0; i < 3; ++i) {
+    PointRecord p{i, 10.0 * i, 0.05 * i, -100.0 - i, 25.0, 0.2, 4.0};
+    ASSERT_TRUE((*store)->append_point(*id, p).has_value());
+  }
+  EvaluationRecord e;
+  e.method = "derivative";
+  e.options_json = "{\"window_points\":5}";
+  e.endpoints.push_back(EndpointRecord{0.075, 0.004, -101.5, 300.0, ""});
+  auto eval = (*store)->add_evaluation(*id, e);
+  ASSERT_TRUE(eval.has_value());
+  ResultRecord r;
+  r.run_id = *id;
+  r.evaluation_id = *eval;
+  r.name = "metal_concentration";
+  r.value = 1.5;
+  r.unit = "mmol/L";
+  ASSERT_TRUE((*store)->add_result(r).has_value());
+  ASSERT_TRUE((*store)->finish_run(*id, RunStatus::completed, "done").has_value());
+
+  auto run = (*store)->load_run(*id);
+  ASSERT_TRUE(run.has_value());
+  EXPECT_EQ(run->run.sample_id, "well-7");
+  EXPECT_EQ(run->status, RunStatus::completed);
+  EXPECT_EQ(run->point_count, 3);
+  auto points = (*store)->load_points(*id);
+  ASSERT_EQ(points->size(), 3u);
+  EXPECT_DOUBLE_EQ((*points)[2].volume_ml, 0.1);
+  EXPECT_DOUBLE_EQ((*points)[2].signal, -102.0);
+  auto evaluations = (*store)->load_evaluations(*id);
+  ASSERT_EQ(evaluations->size(), 1u);
+  ASSERT_EQ((*evaluations)[0].endpoints.size(), 1u);
+  EXPECT_DOUBLE_EQ((*evaluations)[0].endpoints[0].volume_ml, 0.075);
+  auto results = (*store)->load_results(*id);
+  ASSERT_EQ(results->size(), 1u);
+  EXPECT_EQ((*results)[0].unit, "mmol/L");
+}
+
+TEST(SqliteStore, RawPointsCannotBeChangedOrDeleted) {
+  TempDir dir;
+  const auto path = dir.file("b.sqlite");
+  {
+    auto store = SqliteStore::open(path);
+    auto id = (*store)->begin_run(sample_run());
+    ASSERT_TRUE((*store)->append_point(*id, PointRecord{0, 0, 0, -50, 25, 0, 3}).has_value());
+    // The same index twice is refused: a point is written once.
+    EXPECT_FALSE((*store)->append_point(*id, PointRecord{0, 1, 0, -51, 25, 0, 3}).has_value());
+  }
+  std::string error;
+  EXPECT_NE(exec_raw(path, "UPDATE points SET signal = 0", &error), SQLITE_OK);
+  EXPECT_NE(error.find("raw points cannot be changed"), std::string::npos) << error;
+  EXPECT_NE(exec_raw(path, "DELETE FROM points", &error), SQLITE_OK);
+  EXPECT_NE(error.find("raw points cannot be deleted"), std::string::npos) << error;
+  auto store = SqliteStore::open(path);
+  auto points = (*store)->load_points(1);
+  ASSERT_EQ(points->size(), 1u);
+  EXPECT_DOUBLE_EQ((*points)[0].signal, -50.0);
+}
+
+TEST(SqliteStore, PointsOfAnUnknownRunAreRefused) {
+  TempDir dir;
+  auto store = SqliteStore::open(dir.file("c.sqlite"));
+  EXPECT_FALSE((*store)->append_point(42, PointRecord{}).has_value());  // foreign keys on
+}
+
+TEST(SqliteStore, RunningRunsAreMarkedInterruptedOnNextOpen) {
+  TempDir dir;
+  const auto path = dir.file("d.sqlite");
+  {
+    auto store = SqliteStore::open(path);
+    auto id = (*store)->begin_run(sample_run());
+    ASSERT_TRUE((*store)->append_point(*id, PointRecord{0, 0, 0, -50, 25, 0, 3}).has_value());
+    // No finish_run: as if the process died here.
+  }
+  auto store = SqliteStore::open(path);
+  EXPECT_EQ((*store)->interrupted_on_open(), 1);
+  auto run = (*store)->load_run(1);
+  EXPECT_EQ(run->status, RunStatus::interrupted);
+  EXPECT_EQ(run->point_count, 1);
+}
+
+std::uintmax_t size_and_bytes(const std::string& path, std::string* bytes) {
+  std::ifstream in(path, std::ios::binary);
+  bytes->assign(std::istreambuf_iterator<char>(in), {});
+  return fs::file_size(path);
+}
+
+TEST(SqliteStore, RefusesAForeignSqliteFileAndLeavesItAlone) {
+  TempDir dir;
+  const auto path = dir.file("other.sqlite");
+  ASSERT_EQ(exec_raw(path, "CREATE TABLE recipes (name TEXT); INSERT INTO recipes VALUES ('x')"),
+            SQLITE_OK);
+  std::string before, after;
+  size_and_bytes(path, &before);
+  auto store = SqliteStore::open(path);
+  ASSERT_FALSE(store.has_value());
+  EXPECT_NE(store.error().message.find("not a veq store"), std::string::npos);
+  size_and_bytes(path, &after);
+  EXPECT_EQ(before, after);
+}
+
+TEST(SqliteStore, RefusesANewerSchemaAndLeavesItAlone) {
+  TempDir dir;
+  const auto path = dir.file("newer.sqlite");
+  { ASSERT_TRUE(SqliteStore::open(path).has_value()); }
+  ASSERT_EQ(exec_raw(path, "PRAGMA user_version = 99"), SQLITE_OK);
+  std::string before, after;
+  size_and_bytes(path, &before);
+  auto store = SqliteStore::open(path);
+  ASSERT_FALSE(store.has_value());
+  EXPECT_NE(store.error().message.find("schema version 99"), std::string::npos);
+  size_and_bytes(path, &after);
+  EXPECT_EQ(before, after);
+}
+
+TEST(SqliteStore, RefusesAFileThatIsNotSqlite) {
+  TempDir dir;
+  const auto path = dir.file("text.sqlite");
+  { std::ofstream(path) << "volume_ml,signal\n0.0,-50\n"; }
+  auto store = SqliteStore::open(path);
+  ASSERT_FALSE(store.has_value());
+  std::ifstream in(path);
+  std::string first;
+  std::getline(in, first);
+  EXPECT_EQ(first, "volume_ml,signal");
+}
+
+TEST(SqliteStore, DurabilitySettings) {
+  // WAL with synchronous=FULL: see docs/store.md for why.
+  TempDir dir;
+  const auto path = dir.file("e.sqlite");
+  auto store = SqliteStore::open(path);
+  ASSERT_TRUE(store.has_value());
+  sqlite3* db = nullptr;
+  sqlite3_open(path.c_str(), &db);
+  sqlite3_stmt* s = nullptr;
+  sqlite3_prepare_v2(db, "PRAGMA journal_mode", -1, &s, nullptr);
+  ASSERT_EQ(sqlite3_step(s), SQLITE_ROW);
+  EXPECT_STREQ(reinterpret_cast<const char*>(sqlite3_column_text(s, 0)), "wal");
+  sqlite3_finalize(s);
+  sqlite3_close(db);
+}
+
+}  // namespace
+}  // namespace veq::store

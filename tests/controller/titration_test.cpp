@@ -1,0 +1,220 @@
+// Whole titrations in virtual time: the fixed-increment procedure against the
+// simulated burette and electrode, through the real protocol and store.
+#include <gtest/gtest.h>
+
+#include <cmath>
+#include <memory>
+#include <random>
+
+#include "controller/store/sqlite_store.hpp"
+#include "controller/titration.hpp"
+#include "simulator/bench.hpp"
+#include "simulator/builtin_scenarios.hpp"
+
+namespace veq::controller {
+namespace {
+
+simulator::Scenario demo_scenario() {
+  auto s = simulator::parse_scenario(simulator::builtin_scenario("demo_calcium"), "demo");
+  EXPECT_TRUE(s.has_value());
+  return *s;
+}
+
+/// One sample on its own simulated bench, titrated into an in-memory store.
+struct Trial {
+  simulator::Scenario scenario;
+  drivers::VirtualClock clock;
+  std::unique_ptr<simulator::SimulatedBench> bench;
+  std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link;
+  std::unique_ptr<drivers::BuretteClient> burette;
+  std::unique_ptr<drivers::PotentialSensorClient> sensor;
+  std::unique_ptr<store::SqliteStore> store;
+  SampleDescription sample;
+  FixedIncrementMethod method;
+
+  explicit Trial(simulator::Scenario s) : scenario(std::move(s)) {
+    bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
+    burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
+    sensor_link =
+        std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "electrode");
+    burette = std::make_unique<drivers::BuretteClient>(*burette_link);
+    sensor = std::make_unique<drivers::PotentialSensorClient>(*sensor_link);
+    store = std::move(store::SqliteStore::open(":memory:")).value();
+    sample.sample_id = "trial";
+    sample.sample_volume_ml = scenario.sample.volume_ml;
+    sample.titrant_conc_mol_per_l = scenario.titrant.label_conc_mol_per_l;
+    method.max_volume_ml = 20.0;
+  }
+
+  RunOutcome run(const std::atomic<bool>* abort = nullptr) {
+    Instruments instruments{*burette, *sensor, clock};
+    return run_fixed_increment_titration(instruments, *store, sample, method, nullptr, abort);
+  }
+};
+
+TEST(FixedIncrementTitration, FindsTheEquivalenceWithinTwoTenthsOfAPercentOver50Seeds) {
+  // Issue requirement: 0.1 mV noise, 0.05 mL steps, 50 seeds, |error| < 0.2 %.
+  // The sample content varies per seed so the equivalence point falls at any
+  // position between two volume steps.
+  std::mt19937_64 draw(4242);
+  std::uniform_real_distribution<double> content(0.017, 0.023);
+  double worst = 0.0, sum = 0.0;
+  for (int seed = 1; seed <= 50; ++seed) {
+    auto scenario = demo_scenario();
+    scenario.seed = static_cast<std::uint64_t>(seed);
+    scenario.sample.metal_conc_mol_per_l = content(draw);
+    scenario.electrode.noise_mv = 0.1;
+    Trial trial(scenario);
+    trial.method.increment_ml = 0.05;
+    const auto outcome = trial.run();
+    ASSERT_EQ(outcome.status, store::RunStatus::completed)
+        << "seed " << seed << ": " << outcome.reason;
+    ASSERT_TRUE(outcome.endpoint.has_value());
+    const double truth = trial.bench->true_equivalence_reading_ml();
+    const double error = (outcome.endpoint->volume_ml - truth) / truth;
+    EXPECT_LT(std::abs(error), 0.002) << "seed " << seed << ": endpoint "
+                                      << outcome.endpoint->volume_ml << " mL, truth " << truth;
+    worst = std::max(worst, std::abs(error));
+    sum += error;
+  }
+  RecordProperty("worst_relative_error", std::to_string(worst));
+  RecordProperty("mean_relative_error", std::to_string(sum / 50.0));
+}
+
+TEST(FixedIncrementTitration, StoresEveryPointAndTheResult) {
+  Trial trial(demo_scenario());
+  const auto outcome = trial.run();
+  ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
+  auto points = trial.store->load_points(outcome.run_id);
+  ASSERT_TRUE(points.has_value());
+  EXPECT_EQ(points->size(), outcome.point_count);
+  // Volumes rise by the increment and never exceed the limit.
+  for (std::size_t i = 1; i < points->size(); ++i) {
+    EXPECT_NEAR((*points)[i].volume_ml - (*points)[i - 1].volume_ml, 0.05, 1e-9);
+  }
+  // Stopped about 1 mL past the endpoint (10.000 mL for the demo sample).
+  EXPECT_NEAR(points->back().volume_ml, 11.0, 0.1);
+  // Every accepted reading obeyed the drift rule or waited the longest time.
+  for (const auto& p : *points) {
+    EXPECT_TRUE(std::abs(p.drift_per_min) <= 1.0 || p.settle_s >= 60.0) << p.index;
+  }
+  auto results = trial.store->load_results(outcome.run_id);
+  ASSERT_TRUE(results.has_value());
+  ASSERT_EQ(results->size(), 4u);
+  // 25 mL of 0.0200 mol/L calcium: 20 mmol/L (scenario truth), within 0.2 %.
+  EXPECT_EQ((*results)[2].name, "metal_concentration");
+  EXPECT_NEAR((*results)[2].value, 20.0, 0.04);
+  auto run = trial.store->load_run(outcome.run_id);
+  EXPECT_EQ(run->status, store::RunStatus::completed);
+}
+
+void expect_safe_failure(Trial& trial, const RunOutcome& outcome, ErrorKind kind,
+                         const char* says) {
+  EXPECT_EQ(outcome.status, store::RunStatus::failed);
+  EXPECT_NE(outcome.reason.find(error_kind_name(kind)), std::string::npos) << outcome.reason;
+  EXPECT_NE(outcome.reason.find(says), std::string::npos) << outcome.reason;
+  // Every point measured before the fault is in the store.
+  auto points = trial.store->load_points(outcome.run_id);
+  ASSERT_TRUE(points.has_value());
+  EXPECT_GT(points->size(), 5u);
+  EXPECT_EQ(points->size(), outcome.point_count);
+  auto run = trial.store->load_run(outcome.run_id);
+  EXPECT_EQ(run->status, store::RunStatus::failed);
+  EXPECT_EQ(run->end_reason, outcome.reason);
+  // The burette is not moving now, nor a minute later.
+  EXPECT_FALSE(trial.bench->burette().moving());
+  const double counter = trial.bench->burette().counter_ml();
+  trial.clock.sleep_for(std::chrono::seconds(60));
+  EXPECT_DOUBLE_EQ(trial.bench->burette().counter_ml(), counter);
+}
+
+TEST(FixedIncrementTitration, GarbledElectrodeReplyEndsTheRunSafely) {
+  auto scenario = demo_scenario();
+  scenario.electrode_fault = {simulator::FaultKind::garbage, 300.0};
+  Trial trial(scenario);
+  const auto outcome = trial.run();
+  expect_safe_failure(trial, outcome, ErrorKind::garbled, "electrode");
+}
+
+TEST(FixedIncrementTitration, SilentElectrodeEndsTheRunSafely) {
+  auto scenario = demo_scenario();
+  scenario.electrode_fault = {simulator::FaultKind::silence, 400.0};
+  Trial trial(scenario);
+  const auto outcome = trial.run();
+  expect_safe_failure(trial, outcome, ErrorKind::timeout, "electrode");
+}
+
+TEST(FixedIncrementTitration, PartialLineFromTheElectrodeEndsTheRunSafely) {
+  auto scenario = demo_scenario();
+  scenario.electrode_fault = {simulator::FaultKind::partial_line, 350.0};
+  Trial trial(scenario);
+  const auto outcome = trial.run();
+  expect_safe_failure(trial, outcome, ErrorKind::timeout, "unfinished line");
+}
+
+TEST(FixedIncrementTitration, SilentBuretteStopsByItself) {
+  // The burette falls silent: the host cannot confirm a stop, so the device's
+  // own host-silence limit and the dose's time limit must end any motion.
+  auto scenario = demo_scenario();
+  scenario.burette_fault = {simulator::FaultKind::silence, 500.0};
+  Trial trial(scenario);
+  const auto outcome = trial.run();
+  EXPECT_FALSE(outcome.burette_stopped);
+  expect_safe_failure(trial, outcome, ErrorKind::timeout, "burette");
+}
+
+TEST(FixedIncrementTitration, GarbledBuretteReplyEndsTheRunSafely) {
+  auto scenario = demo_scenario();
+  scenario.burette_fault = {simulator::FaultKind::garbage, 250.0};
+  Trial trial(scenario);
+  const auto outcome = trial.run();
+  expect_safe_failure(trial, outcome, ErrorKind::garbled, "burette");
+}
+
+TEST(FixedIncrementTitration, AbortStopsAndRecords) {
+  Trial trial(demo_scenario());
+  std::atomic<bool> abort{true};
+  const auto outcome = trial.run(&abort);
+  EXPECT_EQ(outcome.status, store::RunStatus::aborted);
+  EXPECT_NE(outcome.reason.find("aborted by the operator"), std::string::npos);
+  EXPECT_FALSE(trial.bench->burette().moving());
+}
+
+TEST(FixedIncrementTitration, NoBreakBeforeTheMaximumVolumeIsAFailureWithReason) {
+  Trial trial(demo_scenario());
+  trial.method.max_volume_ml = 5.0;  // the demo's equivalence is at 10 mL
+  const auto outcome = trial.run();
+  EXPECT_EQ(outcome.status, store::RunStatus::failed);
+  EXPECT_NE(outcome.reason.find("no endpoint"), std::string::npos) << outcome.reason;
+  EXPECT_NE(outcome.reason.find("maximum volume"), std::string::npos) << outcome.reason;
+  EXPECT_LE(trial.bench->burette().counter_ml(), 5.0 + 1e-9);
+}
+
+TEST(MetalResult, AmountAndConcentrationFromTheEndpoint) {
+  // Worked by hand: 12.50 mL of 0.01000 mol/L EDTA for a 50.00 mL aliquot is
+  // 0.1250 mmol of metal, 2.500 mmol/L; with Ca (standard atomic weight
+  // 40.078, IUPAC 2021 table) 100.2 mg/L.
+  SampleDescription s;
+  s.sample_volume_ml = 50.0;
+  s.titrant_conc_mol_per_l = 0.01;
+  auto r = compute_metal_result(12.5, s);
+  ASSERT_TRUE(r.has_value());
+  EXPECT_NEAR(r->amount_mmol, 0.125, 1e-12);
+  EXPECT_NEAR(r->conc_mmol_per_l, 2.5, 1e-12);
+  EXPECT_NEAR(r->conc_mg_per_l, 100.195, 1e-9);
+  s.sample_volume_ml = 0.0;
+  EXPECT_FALSE(compute_metal_result(12.5, s).has_value());
+}
+
+TEST(Drift, LeastSquaresSlopePerMinute) {
+  // A straight line rising 0.5 mV per second is 30 mV/min whatever the offset.
+  std::vector<double> t = {0, 1, 2, 3, 4, 5};
+  std::vector<double> v;
+  for (double x : t)
+    v.push_back(-120.0 + 0.5 * x);
+  EXPECT_NEAR(least_squares_slope_per_min(t, v), 30.0, 1e-9);
+  EXPECT_DOUBLE_EQ(least_squares_slope_per_min({1.0}, {2.0}), 0.0);
+}
+
+}  // namespace
+}  // namespace veq::controller
