@@ -8,10 +8,12 @@
 namespace veq::chemistry {
 
 double log10_fully_deprotonated_fraction(std::span<const double> pka_values, double ph) {
-  if (!std::isfinite(ph)) throw std::invalid_argument("pH is not a finite number");
+  if (!std::isfinite(ph))
+    throw std::invalid_argument("pH is not a finite number");
   std::vector<double> pka(pka_values.begin(), pka_values.end());
   for (double p : pka) {
-    if (!std::isfinite(p)) throw std::invalid_argument("a pKa value is not a finite number");
+    if (!std::isfinite(p))
+      throw std::invalid_argument("a pKa value is not a finite number");
   }
   // Sorted ascending: K1 is the strongest acid step (smallest pKa).
   std::sort(pka.begin(), pka.end());
@@ -26,7 +28,8 @@ double log10_fully_deprotonated_fraction(std::span<const double> pka_values, dou
   }
   const double largest = *std::max_element(log_terms.begin(), log_terms.end());
   double total = 0.0;
-  for (double t : log_terms) total += std::pow(10.0, t - largest);
+  for (double t : log_terms)
+    total += std::pow(10.0, t - largest);
   return -(largest + std::log10(total));
 }
 

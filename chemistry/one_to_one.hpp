@@ -6,10 +6,10 @@ namespace veq::chemistry {
 
 /// A metal titrated with a chelating titrant that forms one 1:1 complex.
 struct OneToOneTitration {
-  double metal_conc_mol_per_l = 0.0;     ///< analytical metal concentration in the sample, mol/L
-  double sample_volume_ml = 0.0;         ///< sample volume in the vessel before titrant, mL
-  double titrant_conc_mol_per_l = 0.0;   ///< titrant (chelator) concentration, mol/L
-  double conditional_constant = 0.0;     ///< K' in L/mol (see conditional_formation_constant)
+  double metal_conc_mol_per_l = 0.0;    ///< analytical metal concentration in the sample, mol/L
+  double sample_volume_ml = 0.0;        ///< sample volume in the vessel before titrant, mL
+  double titrant_conc_mol_per_l = 0.0;  ///< titrant (chelator) concentration, mol/L
+  double conditional_constant = 0.0;    ///< K' in L/mol (see conditional_formation_constant)
 };
 
 /// Equivalence volume in mL: metal amount / titrant concentration.
