@@ -1,5 +1,6 @@
-// Time for a run: a clock interface, a real steady clock and a virtual clock
-// that advances only when the run waits.
+// Time for a run: a clock interface, a real steady clock, a scaled real clock
+// for demonstrations faster than real time, and a virtual clock that advances
+// only when the run waits.
 #pragma once
 
 #include <atomic>
@@ -55,6 +56,32 @@ class SteadyClock final : public Clock {
 
  private:
   std::chrono::steady_clock::time_point start_;
+};
+
+/// Real time run faster (or slower) by a constant factor: now() is the real
+/// steady time since construction multiplied by the factor, and sleep_for(d)
+/// sleeps d divided by it. A host and a simulator that each own a ScaledClock
+/// with the same factor agree on how fast time passes (not on its origin),
+/// which is all a titration needs: a 20x demo doses, settles and times out in
+/// a twentieth of the real time, over real serial lines. Safe to read from
+/// several threads (now() only reads immutable state).
+class ScaledClock final : public Clock {
+ public:
+  /// time_scale: clock seconds per real second (> 0 and finite; 1 = real time).
+  /// Throws std::invalid_argument otherwise (a programming error: options from
+  /// users are checked where they are read).
+  explicit ScaledClock(double time_scale = 1.0);
+  Duration now() const override;
+  void sleep_for(Duration d) override;
+
+  /// Clock seconds per real second.
+  double time_scale() const { return time_scale_; }
+  /// The real duration that lasts d on this clock (ns).
+  Duration to_real(Duration d) const;
+
+ private:
+  std::chrono::steady_clock::time_point start_;
+  double time_scale_;
 };
 
 }  // namespace veq::drivers

@@ -1,0 +1,193 @@
+// Line framing and deadlines over any Boost.Asio byte stream (a serial port,
+// a TCP socket). Internal to drivers/: included only by the .cpp files that
+// open a concrete stream, so that Asio's heavy headers stay out of the rest.
+#pragma once
+
+#include <array>
+#include <chrono>
+#include <cstddef>
+#include <functional>
+#include <memory>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <utility>
+
+#include <boost/asio/io_context.hpp>
+#include <boost/asio/steady_timer.hpp>
+#include <boost/asio/write.hpp>
+#include <boost/system/error_code.hpp>
+
+#include "common/result.hpp"
+#include "drivers/transport.hpp"
+
+namespace veq::drivers::detail {
+
+/// True for the errors that mean the other end is gone (a pulled USB adapter,
+/// a closed pseudo-terminal master, a reset TCP connection), as opposed to a
+/// local failure.
+inline bool is_disconnection(const boost::system::error_code& ec) {
+  namespace errc = boost::system::errc;
+  return ec == boost::asio::error::eof || ec == boost::asio::error::connection_reset ||
+         ec == boost::asio::error::broken_pipe || ec == boost::asio::error::bad_descriptor ||
+         ec == boost::asio::error::not_connected || ec == errc::io_error ||
+         ec == errc::no_such_device_or_address || ec == errc::no_such_device;
+}
+
+/// A Transport over a Boost.Asio stream that it owns together with its own
+/// io_context, run on the caller's thread inside each call: no background
+/// thread, so a call returns only when its bytes moved or its deadline passed.
+/// One caller at a time (a run's worker thread); not safe for concurrent calls.
+///
+/// Deadlines are real (steady-clock) time even when the run's clock is scaled,
+/// because the line and the device's answer take real time.
+template <typename Stream>
+class AsioStreamTransport final : public Transport {
+ public:
+  /// Drops bytes the operating system holds for the stream but nobody read yet.
+  using InputDropper = std::function<void(Stream&)>;
+
+  /// `io` must be the context `stream` was built on; both move in here.
+  AsioStreamTransport(std::unique_ptr<boost::asio::io_context> io, Stream stream,
+                      std::string description, InputDropper drop_pending_input)
+      : io_(std::move(io)),
+        stream_(std::move(stream)),
+        timer_(*io_),
+        description_(std::move(description)),
+        drop_pending_input_(std::move(drop_pending_input)) {}
+
+  std::string describe() const override { return description_; }
+
+  Result<void> write_all(std::string_view bytes, std::chrono::milliseconds timeout) override {
+    bool timed_out = false;
+    boost::system::error_code write_ec;
+    timer_.expires_after(timeout);
+    timer_.async_wait([&](const boost::system::error_code& ec) {
+      if (!ec) {
+        timed_out = true;
+        boost::system::error_code ignored;
+        stream_.cancel(ignored);
+      }
+    });
+    boost::asio::async_write(stream_, boost::asio::buffer(bytes.data(), bytes.size()),
+                             [&](const boost::system::error_code& ec, std::size_t) {
+                               write_ec = ec;
+                               timer_.cancel();
+                             });
+    io_->restart();
+    io_->run();
+    if (!write_ec)
+      return {};
+    if (timed_out) {
+      // Only flow control (or a full buffer nobody drains) holds a write back.
+      return make_error(ErrorKind::timeout, description_ + ": could not send " +
+                                                std::to_string(bytes.size()) + " bytes within " +
+                                                std::to_string(timeout.count()) +
+                                                " ms; is flow control holding the line?");
+    }
+    return failure("send", write_ec);
+  }
+
+  Result<std::string> read_line(std::chrono::milliseconds timeout) override {
+    if (auto line = take_line())
+      return std::move(*line);
+    const auto deadline = std::chrono::steady_clock::now() + timeout;
+    while (true) {
+      bool timed_out = false;
+      boost::system::error_code read_ec;
+      std::size_t received = 0;
+      timer_.expires_at(deadline);
+      timer_.async_wait([&](const boost::system::error_code& ec) {
+        if (!ec) {
+          // Cancelling the read is what makes the timeout clean: the read
+          // ends with operation_aborted and the port stays open for the next
+          // exchange.
+          timed_out = true;
+          boost::system::error_code ignored;
+          stream_.cancel(ignored);
+        }
+      });
+      stream_.async_read_some(boost::asio::buffer(chunk_),
+                              [&](const boost::system::error_code& ec, std::size_t n) {
+                                read_ec = ec;
+                                received = n;
+                                timer_.cancel();
+                              });
+      io_->restart();
+      io_->run();
+      // Bytes that arrived just as the deadline passed still count.
+      input_.append(chunk_.data(), received);
+      if (received > 0) {
+        if (auto line = take_line())
+          return std::move(*line);
+      }
+      if (read_ec && read_ec != boost::asio::error::operation_aborted)
+        return failure("receive", read_ec);
+      if (timed_out) {
+        // What had arrived stays buffered: a slow device may still finish the
+        // line. DeviceLink discards it when it gives up on the exchange.
+        const std::string what =
+            input_.empty() ? "nothing"
+                           : "an unfinished line of " + std::to_string(input_.size()) + " bytes";
+        return make_error(ErrorKind::timeout, description_ + " sent " + what + " within " +
+                                                  std::to_string(timeout.count()) + " ms");
+      }
+    }
+  }
+
+  void discard_input() override {
+    input_.clear();
+    if (drop_pending_input_)
+      drop_pending_input_(stream_);
+  }
+
+ private:
+  /// The next complete line in the input, or an error if the input cannot be
+  /// a line, or nothing if more bytes are needed.
+  std::optional<Result<std::string>> take_line() {
+    const auto end = input_.find('\n');
+    if (end == std::string::npos) {
+      if (input_.size() > kMaxLineBytes) {
+        const auto size = input_.size();
+        input_.clear();
+        return Result<std::string>(
+            make_error(ErrorKind::garbled, description_ + " sent " + std::to_string(size) +
+                                               " bytes without a line end (at most " +
+                                               std::to_string(kMaxLineBytes) + " are allowed)"));
+      }
+      return std::nullopt;
+    }
+    std::string line = input_.substr(0, end);
+    input_.erase(0, end + 1);
+    if (!line.empty() && line.back() == '\r')
+      line.pop_back();
+    if (line.size() > kMaxLineBytes) {
+      return Result<std::string>(
+          make_error(ErrorKind::garbled, description_ + " sent a line of " +
+                                             std::to_string(line.size()) + " bytes (at most " +
+                                             std::to_string(kMaxLineBytes) + " are allowed)"));
+    }
+    return Result<std::string>(std::move(line));
+  }
+
+  Error failure(const char* action, const boost::system::error_code& ec) const {
+    if (is_disconnection(ec)) {
+      return make_error(ErrorKind::disconnected,
+                        description_ + ": the line is closed (" + ec.message() +
+                            " while trying to " + action +
+                            "); check the cable and that the device is on");
+    }
+    return make_error(ErrorKind::io,
+                      description_ + ": could not " + action + " (" + ec.message() + ")");
+  }
+
+  std::unique_ptr<boost::asio::io_context> io_;
+  Stream stream_;
+  boost::asio::steady_timer timer_;
+  std::string description_;
+  InputDropper drop_pending_input_;
+  std::array<char, 512> chunk_{};
+  std::string input_;
+};
+
+}  // namespace veq::drivers::detail
