@@ -9,6 +9,7 @@ DeviceLink::DeviceLink(Transport& transport, Clock& clock, std::string device_na
     : transport_(transport), clock_(clock), name_(std::move(device_name)), options_(options) {}
 
 Result<protocol::Message> DeviceLink::call(protocol::Message request) {
+  std::lock_guard<std::mutex> lock(exchange_);
   request.sequence = next_sequence_;
   next_sequence_ = next_sequence_ >= 65535 ? 1 : next_sequence_ + 1;
   const std::string command = request.word;

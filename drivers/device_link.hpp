@@ -4,6 +4,7 @@
 
 #include <chrono>
 #include <cstdint>
+#include <mutex>
 #include <string>
 
 #include "common/result.hpp"
@@ -30,6 +31,9 @@ class DeviceLink {
   /// line that cannot be parsed is ErrorKind::garbled; an "error" reply is
   /// ErrorKind::device_refused with the device's reason; no reply in time is
   /// ErrorKind::timeout. Every message names the device and the command.
+  /// Safe to call from several threads: exchanges are serialised, so an
+  /// operator's stop from another thread goes out right after the exchange in
+  /// flight (an exchange lasts milliseconds; at most the reply timeout).
   Result<protocol::Message> call(protocol::Message request);
 
   const std::string& device_name() const { return name_; }
@@ -42,6 +46,7 @@ class DeviceLink {
   std::string name_;
   LinkOptions options_;
   std::uint32_t next_sequence_ = 1;
+  std::mutex exchange_;
 };
 
 }  // namespace veq::drivers

@@ -24,6 +24,8 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
                  scenario.seed * 2654435761u + 2, [this] { return burette_.true_delivered_ml(); }),
       burette_line_("burette", burette_, clock),
       electrode_line_("electrode", electrode_, clock) {
+  burette_.share_lock(&vessel_lock_);
+  electrode_.share_lock(&vessel_lock_);
   burette_.set_fault(scenario.burette_fault);
   electrode_.set_fault(scenario.electrode_fault);
 }

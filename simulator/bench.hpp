@@ -35,6 +35,7 @@ class SimulatedBench {
 
  private:
   Scenario scenario_;
+  std::mutex vessel_lock_;
   VirtualBurette burette_;
   VirtualElectrode electrode_;
   drivers::MemoryTransport burette_line_;

@@ -12,6 +12,9 @@ bool VirtualDevice::fault_active() const {
 }
 
 std::string VirtualDevice::receive(std::string_view bytes) {
+  std::unique_lock<std::mutex> lock;
+  if (bench_lock_)
+    lock = std::unique_lock<std::mutex>(*bench_lock_);
   pending_.append(bytes);
   std::string out;
   std::size_t end;

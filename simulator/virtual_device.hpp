@@ -2,6 +2,7 @@
 // replies in veq's native protocol, and switchable faults on the line.
 #pragma once
 
+#include <mutex>
 #include <random>
 #include <string>
 
@@ -21,6 +22,9 @@ class VirtualDevice : public drivers::ByteDevice {
 
   /// Switches a fault on from a moment of device time (or off with FaultKind::none).
   void set_fault(FaultPlan plan) { fault_ = plan; }
+  /// Devices of one bench share their vessel's state: they answer one request
+  /// at a time under this lock when hosts on several threads talk to them.
+  void share_lock(std::mutex* bench_lock) { bench_lock_ = bench_lock; }
 
  protected:
   /// Answers one parsed request. Called with the clock at the request's time.
@@ -35,6 +39,7 @@ class VirtualDevice : public drivers::ByteDevice {
 
   std::string pending_;
   FaultPlan fault_;
+  std::mutex* bench_lock_ = nullptr;
 };
 
 }  // namespace veq::simulator
