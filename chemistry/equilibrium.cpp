@@ -729,13 +729,17 @@ struct EquilibriumSolver::Impl {
   }
 
   void cold_start(const Conditions& cond) {
+    initial_guess(cond);
+    clip_start();
+  }
+
+  void initial_guess(const Conditions& cond) {
     for (int u = 0; u < n; ++u) {
       const int j = unknown_component[u];
       // A free concentration cannot exceed its total; the proton starts neutral.
       x[u] = j == system.proton ? -7.0 * kLn10
                                 : std::log(cond.total_mol_per_l[static_cast<std::size_t>(j)]);
     }
-    clip_start();
   }
 
   // No species can hold more of a metal or ligand than its total (over its
@@ -816,8 +820,10 @@ Result<void> EquilibriumSolver::solve_from(const Conditions& conditions, const S
     return ok;
   if (auto ok = s.setup(conditions); !ok)
     return ok;
-  s.cold_start(conditions);
-  if (start.log10_free.size() == static_cast<std::size_t>(s.nc)) {
+  if (start.log10_free.size() != static_cast<std::size_t>(s.nc)) {
+    s.cold_start(conditions);
+  } else {
+    s.initial_guess(conditions);
     for (int u = 0; u < s.n; ++u) {
       const double v = start.log10_free[static_cast<std::size_t>(s.unknown_component[u])];
       if (std::isfinite(v))

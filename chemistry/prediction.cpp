@@ -254,11 +254,16 @@ Result<TitrationModel> TitrationModel::create(const ConstantsLibrary& library,
 }
 
 Conditions TitrationModel::conditions_at(double added_ml) const {
+  Conditions c;
+  conditions_at(added_ml, c);
+  return c;
+}
+
+void TitrationModel::conditions_at(double added_ml, Conditions& c) const {
   const double total_ml = sample_.sample_volume_ml + added_ml;
   const double sample_part = sample_.sample_volume_ml / total_ml;
   const double titrant_part = added_ml / total_ml;
   const auto& sys = system();
-  Conditions c;
   c.total_mol_per_l.assign(sys.components.size(), 0.0);
   double protons = sample_.strong_acid_mol_per_l * sample_part;
   for (std::size_t m = 0; m < sample_.metals.size(); ++m) {
@@ -279,15 +284,15 @@ Conditions TitrationModel::conditions_at(double added_ml) const {
   c.total_mol_per_l[0] = protons;
   c.ph = sample_.ph;
   c.ionic_strength_mol_per_l = sample_.ionic_strength_mol_per_l;
-  return c;
 }
 
 Result<void> TitrationModel::solve_at(double added_ml, Speciation& out, const Speciation* start) {
   if (!(added_ml >= 0.0) || !std::isfinite(added_ml)) {
     return input_error("added titrant volume must be a finite number >= 0 mL");
   }
-  const Conditions c = conditions_at(added_ml);
-  return start ? solver_.solve_from(c, *start, out) : solver_.solve(c, out);
+  conditions_at(added_ml, work_conditions_);
+  return start ? solver_.solve_from(work_conditions_, *start, out)
+               : solver_.solve(work_conditions_, out);
 }
 
 double TitrationModel::p_metal(const Speciation& s, std::size_t i) const {

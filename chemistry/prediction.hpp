@@ -35,6 +35,8 @@ class TitrationModel {
 
   /// Totals (diluted by the added titrant) and pH setting at added_ml of titrant.
   Conditions conditions_at(double added_ml) const;
+  /// The same into `out`, reusing its storage (no allocation once sized).
+  void conditions_at(double added_ml, Conditions& out) const;
 
   /// Equilibrium at added_ml, warm-started from `start` when given.
   Result<void> solve_at(double added_ml, Speciation& out, const Speciation* start = nullptr);
@@ -68,6 +70,7 @@ class TitrationModel {
   TitrationModel(SampleComposition sample, EquilibriumSolver solver);
   SampleComposition sample_;
   EquilibriumSolver solver_;
+  Conditions work_conditions_;  // reused by solve_at()
   int titrant_ = -1;
   int indicator_ = -1;
   std::size_t signal_metal_ = 0;
