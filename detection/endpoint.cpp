@@ -28,6 +28,10 @@ const char* quality_flag_name(QualityFlag flag) noexcept {
       return "few_points_in_segment";
     case QualityFlag::weak_angle:
       return "weak_angle";
+    case QualityFlag::signal_out_of_range:
+      return "signal_out_of_range";
+    case QualityFlag::dilution_not_corrected:
+      return "dilution_not_corrected";
   }
   return "unknown";
 }

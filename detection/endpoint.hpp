@@ -46,6 +46,12 @@ enum class QualityFlag : int {
   /// The two straight segments are nearly parallel, so their intersection is
   /// poorly defined (segments method).
   weak_angle = 11,
+  /// Some signal values cannot be used by the method (a transmittance of 0 %
+  /// or less has no absorbance); those points were left out.
+  signal_out_of_range = 12,
+  /// The segments method could not correct for dilution because the curve's
+  /// sample volume is unknown (whole-curve flag).
+  dilution_not_corrected = 13,
 };
 
 /// A short, stable name ("few_points_after_endpoint", ...).
@@ -56,9 +62,11 @@ struct Endpoint {
   double volume_ml = 0.0;       ///< endpoint volume, mL of titrant
   double signal = 0.0;          ///< signal at the endpoint, in the curve's signal unit
   double uncertainty_ml = 0.0;  ///< standard uncertainty of volume_ml, mL
-  /// |dSignal/dV| at the endpoint, signal units per mL (as seen by the method's
-  /// local fit, so a break sharper than the volume steps shows as the
-  /// steepness the steps allow).
+  /// |dSignal/dV| at the endpoint, signal units per mL. Derivative and
+  /// crossing: the slope there (as seen by the local fit or the two bracketing
+  /// points, so a break sharper than the volume steps shows as the steepness
+  /// the steps allow). Segments: the change of slope between the two straight
+  /// segments, in (dilution-corrected) absorbance per mL.
   double steepness = 0.0;
   std::vector<QualityFlag> flags;
 };

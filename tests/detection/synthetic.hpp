@@ -107,3 +107,43 @@ inline ErrorStats stats(const std::vector<double>& errors) {
 }
 
 }  // namespace veq::detection::testing
+
+namespace veq::detection::testing {
+
+// A photometric 1:1 titration: the metal ion and its chelate absorb at the
+// measuring wavelength (path 1 cm), the free titrant does not. Molar
+// absorptivities are invented for the demo; the shape (two straight lines
+// after dilution correction, rounded near the equivalence point when K' is
+// modest) follows from Beer's law and the exact 1:1 mass balances.
+struct PhotometricCurveSpec {
+  double metal_conc_mol_per_l = 0.002;
+  double sample_volume_ml = 50.0;
+  double equivalence_volume_ml = 10.0;
+  double conditional_constant = 1e6;
+  double metal_absorptivity_l_per_mol_cm = 10.0;
+  double chelate_absorptivity_l_per_mol_cm = 100.0;
+  double noise_sd = 0.001;  // absorbance
+};
+
+inline std::vector<double> absorbance(const PhotometricCurveSpec& spec,
+                                      const std::vector<double>& volume_ml, std::mt19937_64& rng) {
+  veq::chemistry::OneToOneTitration t;
+  t.metal_conc_mol_per_l = spec.metal_conc_mol_per_l;
+  t.sample_volume_ml = spec.sample_volume_ml;
+  t.titrant_conc_mol_per_l =
+      spec.metal_conc_mol_per_l * spec.sample_volume_ml / spec.equivalence_volume_ml;
+  t.conditional_constant = spec.conditional_constant;
+  std::normal_distribution<double> noise(0.0, spec.noise_sd);
+  std::vector<double> a;
+  a.reserve(volume_ml.size());
+  for (double v : volume_ml) {
+    const double total_metal = t.metal_conc_mol_per_l * t.sample_volume_ml / (t.sample_volume_ml + v);
+    const double free_metal = veq::chemistry::free_metal_mol_per_l(t, v);
+    const double clean = spec.metal_absorptivity_l_per_mol_cm * free_metal +
+                         spec.chelate_absorptivity_l_per_mol_cm * (total_metal - free_metal);
+    a.push_back(spec.noise_sd > 0.0 ? clean + noise(rng) : clean);
+  }
+  return a;
+}
+
+}  // namespace veq::detection::testing
