@@ -3,7 +3,11 @@
 // open a concrete stream, so that Asio's heavy headers stay out of the rest.
 #pragma once
 
+#include <fcntl.h>
+#include <unistd.h>
+
 #include <array>
+#include <cerrno>
 #include <chrono>
 #include <cstddef>
 #include <functional>
@@ -54,11 +58,34 @@ class AsioStreamTransport final : public Transport {
         stream_(std::move(stream)),
         timer_(*io_),
         description_(std::move(description)),
-        drop_pending_input_(std::move(drop_pending_input)) {}
+        drop_pending_input_(std::move(drop_pending_input)) {
+    // The fast path in write_all() must never block: it moves bytes at once
+    // or says "would block", and the timed asynchronous path takes over.
+    if constexpr (kHasNonBlockingMode) {
+      boost::system::error_code ignored;
+      stream_.non_blocking(true, ignored);
+    } else {
+      const int fd = stream_.native_handle();
+      ::fcntl(fd, F_SETFL, ::fcntl(fd, F_GETFL) | O_NONBLOCK);
+    }
+  }
 
   std::string describe() const override { return description_; }
 
   Result<void> write_all(std::string_view bytes, std::chrono::milliseconds timeout) override {
+    // A request line fits the kernel's buffer, so it normally goes out in one
+    // system call, without arming a timer or running the io_context.
+    while (!bytes.empty()) {
+      boost::system::error_code ec;
+      const std::size_t n = try_write(bytes, ec);
+      if (ec == boost::asio::error::would_block || ec == boost::asio::error::try_again)
+        break;
+      if (ec)
+        return failure("send", ec);
+      bytes.remove_prefix(n);
+    }
+    if (bytes.empty())
+      return {};
     bool timed_out = false;
     boost::system::error_code write_ec;
     timer_.expires_after(timeout);
@@ -168,6 +195,28 @@ class AsioStreamTransport final : public Transport {
                                              std::to_string(kMaxLineBytes) + " are allowed)"));
     }
     return Result<std::string>(std::move(line));
+  }
+
+  /// Sockets have a non-blocking mode and send without SIGPIPE; a serial
+  /// port has neither, and a plain write() on its non-blocking descriptor
+  /// does the same job (a terminal raises no SIGPIPE).
+  static constexpr bool kHasNonBlockingMode = requires(Stream & s, boost::system::error_code& e) {
+    s.non_blocking(true, e);
+  };
+
+  /// One non-blocking write; would_block when the kernel's buffer is full.
+  std::size_t try_write(std::string_view bytes, boost::system::error_code& ec) {
+    if constexpr (kHasNonBlockingMode) {
+      return stream_.write_some(boost::asio::buffer(bytes.data(), bytes.size()), ec);
+    } else {
+      const ssize_t n = ::write(stream_.native_handle(), bytes.data(), bytes.size());
+      if (n < 0) {
+        ec = boost::system::error_code(errno, boost::system::system_category());
+        return 0;
+      }
+      ec.clear();
+      return static_cast<std::size_t>(n);
+    }
   }
 
   Error failure(const char* action, const boost::system::error_code& ec) const {
