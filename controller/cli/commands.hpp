@@ -9,5 +9,9 @@ namespace veq::cli {
 void add_demo_command(CLI::App& app);
 /// `veq runs`: list stored runs; `veq show`: one run with its points.
 void add_store_commands(CLI::App& app);
+/// `veq speciate` and `veq predict`: the equilibrium engine.
+void add_chemistry_commands(CLI::App& app);
+/// `veq import` and `veq evaluate`: curves from files, endpoint methods.
+void add_evaluate_commands(CLI::App& app);
 
 }  // namespace veq::cli

@@ -15,6 +15,8 @@ int main(int argc, char** argv) {
   app.require_subcommand(1);
   veq::cli::add_demo_command(app);
   veq::cli::add_store_commands(app);
+  veq::cli::add_chemistry_commands(app);
+  veq::cli::add_evaluate_commands(app);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

@@ -101,6 +101,10 @@ class RunStore {
   virtual Result<std::int64_t> add_evaluation(std::int64_t run_id,
                                               const EvaluationRecord& evaluation) = 0;
   virtual Result<std::int64_t> add_result(const ResultRecord& result) = 0;
+  /// Stores a curve measured elsewhere as a run with status `imported`, all of
+  /// its points in one transaction: either everything is stored or nothing.
+  virtual Result<std::int64_t> import_run(const NewRun& run, const std::vector<PointRecord>& points,
+                                          const std::string& origin) = 0;
 
   virtual Result<RunRecord> load_run(std::int64_t run_id) = 0;
   virtual Result<std::vector<RunRecord>> list_runs() = 0;

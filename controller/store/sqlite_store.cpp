@@ -426,6 +426,42 @@ Result<std::int64_t> SqliteStore::add_result(const ResultRecord& r) {
   return static_cast<std::int64_t>(sqlite3_last_insert_rowid(db_));
 }
 
+Result<std::int64_t> SqliteStore::import_run(const NewRun& run,
+                                             const std::vector<PointRecord>& points,
+                                             const std::string& origin) {
+  if (auto r = exec("BEGIN IMMEDIATE"); !r)
+    return r.error();
+  auto id = begin_run(run);
+  if (!id) {
+    (void)exec("ROLLBACK");
+    return id.error();
+  }
+  for (const auto& p : points) {
+    if (auto stored = append_point(*id, p); !stored) {
+      (void)exec("ROLLBACK");
+      return stored.error();
+    }
+  }
+  {
+    Statement s(db_,
+                "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3 WHERE id = ?4");
+    s.bind(1, static_cast<int>(RunStatus::imported))
+        .bind(2, "imported from " + origin)
+        .bind(3, utc_now_iso8601())
+        .bind(4, *id);
+    if (s.step() != SQLITE_DONE) {
+      Error error = storage_error("cannot mark run as imported");
+      (void)exec("ROLLBACK");
+      return error;
+    }
+  }
+  if (auto r = exec("COMMIT"); !r) {
+    (void)exec("ROLLBACK");
+    return r.error();
+  }
+  return *id;
+}
+
 Result<RunRecord> SqliteStore::load_run(std::int64_t run_id) {
   const std::string sql = std::string("SELECT ") + kRunColumns + " FROM runs WHERE id = ?1";
   Statement s(db_, sql.c_str());

@@ -32,6 +32,8 @@ class SqliteStore final : public RunStore {
   Result<std::int64_t> add_evaluation(std::int64_t run_id,
                                       const EvaluationRecord& evaluation) override;
   Result<std::int64_t> add_result(const ResultRecord& result) override;
+  Result<std::int64_t> import_run(const NewRun& run, const std::vector<PointRecord>& points,
+                                  const std::string& origin) override;
 
   Result<RunRecord> load_run(std::int64_t run_id) override;
   Result<std::vector<RunRecord>> list_runs() override;
