@@ -28,12 +28,23 @@ inline std::size_t window_start(std::size_t i, std::size_t n, std::size_t window
 void slope_weights(std::span<const double> volume_ml, std::size_t i, std::size_t start,
                    std::size_t window, double* weights) noexcept;
 
+/// The slope itself (same value as applying slope_weights()), in one pass.
+double slope_at(std::span<const double> volume_ml, std::span<const double> signal, std::size_t i,
+                std::size_t start, std::size_t window) noexcept;
+
+/// Slopes at every point into `slope` (resized to the curve's length), with
+/// windows of `window` points placed by window_start(). When the volume steps
+/// are all equal (within 1e-9 of a step) the interior weights are the same at
+/// every point and are computed once.
+void slopes(std::span<const double> volume_ml, std::span<const double> signal, std::size_t window,
+            std::vector<double>& slope);
+
 /// Standard deviation of the signal noise, in signal units, estimated from the
 /// curve itself: each interior point's distance from the straight line
-/// through its two neighbours, scaled to one point's noise, and the median of
-/// their magnitudes turned into a standard deviation (x 1.4826, exact for
-/// Gaussian noise). The median ignores the few points of a break or a spike.
-/// Returns 0 for fewer than 3 points. `scratch` is reused to avoid allocation.
+/// through its two neighbours, scaled to one point's noise, and the root mean
+/// square of those distances with the ones beyond three standard deviations
+/// (a break, a spike) left out iteratively. Returns 0 for fewer than 3
+/// points. `scratch` is reused to avoid allocation.
 double noise_sd(std::span<const double> volume_ml, std::span<const double> signal,
                 std::vector<double>& scratch);
 
