@@ -13,5 +13,7 @@ void add_store_commands(CLI::App& app);
 void add_chemistry_commands(CLI::App& app);
 /// `veq import` and `veq evaluate`: curves from files, endpoint methods.
 void add_evaluate_commands(CLI::App& app);
+/// `veq run`: one titration against instruments on ports.
+void add_run_command(CLI::App& app);
 
 }  // namespace veq::cli

@@ -17,6 +17,7 @@ int main(int argc, char** argv) {
   veq::cli::add_store_commands(app);
   veq::cli::add_chemistry_commands(app);
   veq::cli::add_evaluate_commands(app);
+  veq::cli::add_run_command(app);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
