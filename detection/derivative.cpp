@@ -142,6 +142,13 @@ Vertex parabola_vertex(double x0, double x1, double x2, double y0, double y1, do
   return {x, y0 + d1 * (x - x0) + a * (x - x0) * (x - x1)};
 }
 
+// The position and its sensitivities to dl and dr (for noise propagation).
+struct FlankPosition {
+  double volume_ml;
+  double d_volume_d_left;
+  double d_volume_d_right;
+};
+
 // Position of the equivalence point inside the jump interval [v1, v2] of a
 // break much sharper than the steps, from the signal changes over the steps
 // on either side (dl over [v0, v1], dr over [v2, v3], same sign as the jump).
@@ -154,13 +161,6 @@ Vertex parabola_vertex(double x0, double x1, double x2, double y0, double y1, do
 // endpoint from the steps next to the largest one on a symmetric curve is
 // J. M. H. Fortuin's (Anal. Chim. Acta 24 (1961) 175; recalled from memory).
 // Returns nothing when the flanks do not both move with the jump.
-// The position and its sensitivities to dl and dr (for noise propagation).
-struct FlankPosition {
-  double volume_ml;
-  double d_volume_d_left;
-  double d_volume_d_right;
-};
-
 std::optional<FlankPosition> logarithmic_flank_position(double v0, double v1, double v2, double v3,
                                                         double dl, double dr) {
   if (!(dl > 0.0) || !(dr > 0.0))
@@ -207,7 +207,8 @@ struct Candidate {
 // endpoints drops far lower.
 constexpr double kMergeValleyFraction = 0.5;
 
-// Sampling part of the standard uncertainty. When a break is sharper than the
+// Sampling part of the standard uncertainty of the interpolated maximum (used
+// when the flank model below does not apply). When a break is sharper than the
 // volume steps, the interpolated maximum cannot follow the equivalence volume
 // between two steps exactly; its error is then a fraction of the step that
 // grows with the share `q` of the break's signal change that falls into one

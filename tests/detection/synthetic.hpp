@@ -3,9 +3,11 @@
 // equation, sampled at chosen volumes with seeded Gaussian noise.
 #pragma once
 
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
 #include <random>
+#include <utility>
 #include <vector>
 
 #include "chemistry/one_to_one.hpp"
@@ -137,7 +139,8 @@ inline std::vector<double> absorbance(const PhotometricCurveSpec& spec,
   std::vector<double> a;
   a.reserve(volume_ml.size());
   for (double v : volume_ml) {
-    const double total_metal = t.metal_conc_mol_per_l * t.sample_volume_ml / (t.sample_volume_ml + v);
+    const double total_metal =
+        t.metal_conc_mol_per_l * t.sample_volume_ml / (t.sample_volume_ml + v);
     const double free_metal = veq::chemistry::free_metal_mol_per_l(t, v);
     const double clean = spec.metal_absorptivity_l_per_mol_cm * free_metal +
                          spec.chelate_absorptivity_l_per_mol_cm * (total_metal - free_metal);
