@@ -120,8 +120,8 @@ double noise_sd(std::span<const double> volume_ml, std::span<const double> signa
   }
   // Iteratively trimmed mean square: residuals beyond 3 sigma of the current
   // estimate (a break, a spike, strong curvature) are left out and the
-  // estimate is redone, until it settles (within 0.1 %, typically after four
-  // or five passes). The mean square of a Gaussian truncated at +-3 sigma is
+  // estimate is redone, until the variance settles within 1 % (0.5 % in
+  // sigma, ample for an uncertainty; typically three or four passes). The mean square of a Gaussian truncated at +-3 sigma is
   // 0.97334 sigma^2 (1 - 2 c phi(c) / (2 Phi(c) - 1) with c = 3), which is
   // divided out. A selection (median) would be as robust but several times
   // slower, and this runs on every evaluation.
@@ -134,10 +134,11 @@ double noise_sd(std::span<const double> volume_ml, std::span<const double> signa
     std::size_t j = 0;
     for (; j + 4 <= m; j += 4) {
       for (std::size_t u = 0; u < 4; ++u) {
+        // Arithmetic, not a branch: which residuals are kept is irregular.
         const double square = scratch[j + u];
-        const bool keep = square <= limit;
-        kept_sum[u] += keep ? square : 0.0;
-        kept[u] += keep ? 1.0 : 0.0;
+        const double keep = static_cast<double>(square <= limit);
+        kept_sum[u] += keep * square;
+        kept[u] += keep;
       }
     }
     for (; j < m; ++j) {
@@ -150,7 +151,7 @@ double noise_sd(std::span<const double> volume_ml, std::span<const double> signa
       break;
     const double next =
         (kept_sum[0] + kept_sum[1] + kept_sum[2] + kept_sum[3]) / total_kept / 0.97334;
-    const bool settled = std::abs(next - variance) <= 1e-3 * variance;
+    const bool settled = std::abs(next - variance) <= 1e-2 * variance;
     variance = next;
     if (settled)
       break;

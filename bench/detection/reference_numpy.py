@@ -63,7 +63,7 @@ def noise_sd(v, e):
         if not keep.any():
             break
         nxt = sq[keep].mean() / 0.97334
-        done = abs(nxt - var) <= 1e-3 * var
+        done = abs(nxt - var) <= 1e-2 * var
         var = nxt
         if done:
             break
