@@ -5,7 +5,7 @@
 namespace veq::controller {
 
 RunWorker::RunWorker(Instruments& instruments, store::RunStore& store, SampleDescription sample,
-                     FixedIncrementMethod method, RunObserver* observer)
+                     TitrationMethod method, RunObserver* observer)
     : instruments_(instruments),
       store_(store),
       sample_(std::move(sample)),
@@ -26,8 +26,7 @@ void RunWorker::start() {
     // Everything is caught at the thread's edge and handed over as an outcome.
     RunOutcome outcome;
     try {
-      outcome =
-          run_fixed_increment_titration(instruments_, store_, sample_, method_, observer_, &abort_);
+      outcome = run_titration(instruments_, store_, sample_, method_, observer_, &control_);
     } catch (const std::exception& e) {
       (void)instruments_.burette.stop();
       outcome.status = store::RunStatus::failed;
@@ -39,7 +38,7 @@ void RunWorker::start() {
 }
 
 void RunWorker::abort() {
-  abort_.store(true);
+  control_.abort.store(true);
   // Do not wait for the run to notice: stop the motor now.
   (void)instruments_.burette.stop();
 }

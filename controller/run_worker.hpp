@@ -17,7 +17,7 @@ namespace veq::controller {
 class RunWorker {
  public:
   RunWorker(Instruments& instruments, store::RunStore& store, SampleDescription sample,
-            FixedIncrementMethod method, RunObserver* observer = nullptr);
+            TitrationMethod method, RunObserver* observer = nullptr);
   /// Aborts a run still going and joins the thread: a worker never outlives
   /// its owner and never leaves the burette dosing.
   ~RunWorker();
@@ -28,6 +28,10 @@ class RunWorker {
   /// Stops the burette at once (from the calling thread, right after any
   /// exchange in flight) and makes the run end as aborted at its next step.
   void abort();
+  /// Holds the run at its next step (the burette is idle between steps) and
+  /// lets it go on.
+  void pause() { control_.pause.store(true); }
+  void resume() { control_.pause.store(false); }
   /// Waits for the run to end and returns how it ended.
   RunOutcome wait();
   bool finished() const { return finished_.load(); }
@@ -36,9 +40,9 @@ class RunWorker {
   Instruments& instruments_;
   store::RunStore& store_;
   SampleDescription sample_;
-  FixedIncrementMethod method_;
+  TitrationMethod method_;
   RunObserver* observer_;
-  std::atomic<bool> abort_{false};
+  RunControl control_;
   std::atomic<bool> finished_{false};
   std::promise<RunOutcome> promise_;
   std::future<RunOutcome> future_;

@@ -33,14 +33,14 @@ std::string flag_names(const std::vector<detection::QualityFlag>& flags) {
 class Titration {
  public:
   Titration(Instruments& inst, store::RunStore& store, const SampleDescription& sample,
-            const FixedIncrementMethod& method, RunObserver* observer,
-            const std::atomic<bool>* abort)
+            const TitrationMethod& method, RunObserver* observer, RunControl* control)
       : inst_(inst),
         store_(store),
         sample_(sample),
         method_(method),
         observer_(observer),
-        abort_(abort) {}
+        control_(control),
+        strategy_(make_dosing_strategy(method.dosing, sample.sample_volume_ml)) {}
 
   RunOutcome run() {
     store::NewRun record;
@@ -61,13 +61,22 @@ class Titration {
     }
     outcome_.run_id = *run_id;
 
-    if (auto done = titrate(); !done)
-      return end_with_error(done.error());
+    if (auto r = prepare(); !r)
+      return end_with_error(r.error());
+    if (auto r = fill_cylinder(); !r)
+      return end_with_error(r.error());
+    if (auto r = initial_addition(); !r)
+      return end_with_error(r.error());
+    if (auto r = titrate(); !r)
+      return end_with_error(r.error());
     return evaluate_and_finish();
   }
 
  private:
-  Result<void> titrate() {
+  // ---- states -------------------------------------------------------------
+
+  Result<void> prepare() {
+    enter(RunState::preparing, "run started");
     auto burette = inst_.burette.identify();
     if (!burette)
       return burette.error();
@@ -76,50 +85,233 @@ class Titration {
       return sensor.error();
     say("burette " + burette->model + ", " + fixed(burette->cylinder_ml, 1) +
         " mL cylinder; electrode " + sensor->electrode);
+    // Rates never above the device's limits (the method's are ours already).
     if (method_.dose_rate_ml_per_min > burette->max_rate_ml_per_min ||
         method_.fill_rate_ml_per_min > burette->max_rate_ml_per_min) {
       return make_error(ErrorKind::invalid_input, "method rates exceed the burette's maximum of " +
                                                       fixed(burette->max_rate_ml_per_min, 2) +
                                                       " mL/min");
     }
-    if (method_.increment_ml > burette->max_dose_ml) {
-      return make_error(ErrorKind::invalid_input, "increment exceeds the burette's largest dose");
+    if (largest_step_ml() > burette->max_dose_ml) {
+      return make_error(ErrorKind::invalid_input, "the method's largest step of " +
+                                                      fixed(largest_step_ml(), 3) +
+                                                      " mL exceeds the burette's largest dose of " +
+                                                      fixed(burette->max_dose_ml, 3) + " mL");
+    }
+    // The vessel must hold the sample and every drop the method may add.
+    if (sample_.sample_volume_ml + method_.max_volume_ml > method_.vessel_capacity_ml) {
+      return make_error(ErrorKind::invalid_input,
+                        "sample " + fixed(sample_.sample_volume_ml, 2) + " mL plus up to " +
+                            fixed(method_.max_volume_ml, 2) + " mL of titrant exceeds the " +
+                            fixed(method_.vessel_capacity_ml, 1) +
+                            " mL vessel; lower the maximum volume or use a larger vessel");
     }
     if (auto r = inst_.burette.arm_host_silence_stop(); !r)
       return r.error();
-    if (auto r = refill_if_below(burette->cylinder_ml); !r)
-      return r.error();
+    auto status = inst_.burette.status();
+    if (!status)
+      return status.error();
+    const double expected = method_.expected_endpoint_ml > 0.0
+                                ? method_.expected_endpoint_ml + method_.volume_past_endpoint_ml
+                                : 0.0;
+    if (status->reservoir_ml >= 0.0 && expected > 0.0 &&
+        status->reservoir_ml + status->cylinder_content_ml < expected) {
+      return make_error(ErrorKind::device_fault,
+                        "only " + fixed(status->reservoir_ml + status->cylinder_content_ml, 1) +
+                            " mL of titrant left for an expected " + fixed(expected, 2) +
+                            " mL; refill the reservoir");
+    }
+    return check_controls();
+  }
+
+  Result<void> fill_cylinder() {
+    enter(RunState::filling, "filling the cylinder before titrating");
+    auto info = inst_.burette.info();
+    if (auto r = refill_if_below(info.cylinder_ml); !r)
+      return r;
     if (auto r = inst_.burette.reset_counter(); !r)
       return r.error();
+    return check_controls();
+  }
 
-    // The starting point, before any titrant.
-    if (auto r = settle_and_record(0.0, inst_.clock.now()); !r)
-      return r.error();
-
-    double volume_ml = 0.0;
-    while (true) {
-      if (auto r = check_abort(); !r)
+  Result<void> initial_addition() {
+    if (method_.initial_volume_ml <= 0.0)
+      return {};
+    enter(RunState::initial_addition,
+          "adding " + fixed(method_.initial_volume_ml, 3) + " mL before the first reading");
+    double left = method_.initial_volume_ml;
+    const double largest = inst_.burette.info().max_dose_ml;
+    while (left > 1e-9) {
+      const double dose = std::min(left, largest);
+      if (auto r = refill_if_below(dose); !r)
         return r;
-      if (volume_ml + method_.increment_ml > method_.max_volume_ml + 1e-9) {
-        stop_reason_ = "maximum volume of " + fixed(method_.max_volume_ml, 2) + " mL reached";
-        return {};
-      }
-      if (auto r = refill_if_below(method_.increment_ml); !r)
-        return r.error();
-      auto dosed = inst_.burette.dose(method_.increment_ml, method_.dose_rate_ml_per_min);
+      auto dosed = inst_.burette.dose(dose, method_.dose_rate_ml_per_min);
       if (!dosed)
         return dosed.error();
-      volume_ml = dosed->delivered_ml;
-      if (auto r = settle_and_record(volume_ml, inst_.clock.now()); !r)
-        return r.error();
-      if (past_endpoint(volume_ml))
+      left -= dose;
+      volume_ml_ = dosed->delivered_ml;
+      if (auto r = check_controls(); !r)
+        return r;
+    }
+    return {};
+  }
+
+  Result<void> titrate() {
+    enter(RunState::titrating,
+          "titrating by " + std::string(dosing_kind_name(method_.dosing.kind)));
+    start_s_ = inst_.clock.now_s();
+    if (auto r = settle_and_record(volume_ml_, inst_.clock.now(), 0.0); !r)
+      return r;
+    while (true) {
+      if (auto r = check_controls(); !r)
+        return r;
+      if (inst_.clock.now_s() - start_s_ > method_.time_limit_s) {
+        stop_reason_ = "time limit of " + fixed(method_.time_limit_s, 0) + " s reached";
+        return {};
+      }
+      const DoseDecision next =
+          strategy_->next(CurveSoFar{volumes_, signals_, method_.max_volume_ml});
+      if (next.finished) {
+        stop_reason_ = next.reason;
+        strategy_endpoint_ml_ = next.endpoint_ml;
+        return {};
+      }
+      if (next.volume_ml <= 0.0) {
+        // The strategy wants to watch the signal without adding titrant.
+        inst_.clock.sleep_for(from_seconds(next.wait_s));
+        if (auto r = settle_and_record(volume_ml_, inst_.clock.now(), 0.0); !r)
+          return r;
+        continue;
+      }
+      double dose = std::min(next.volume_ml, inst_.burette.info().max_dose_ml);
+      if (volume_ml_ + dose > method_.max_volume_ml + 1e-9) {
+        dose = method_.max_volume_ml - volume_ml_;
+        if (dose < 1e-6) {
+          stop_reason_ = "maximum volume of " + fixed(method_.max_volume_ml, 2) + " mL reached";
+          return {};
+        }
+      }
+      if (auto r = refill_if_below(dose); !r)
+        return r;
+      const double before_signal = signals_.back();
+      auto dosed = inst_.burette.dose(dose, method_.dose_rate_ml_per_min);
+      if (!dosed)
+        return dosed.error();
+      volume_ml_ = dosed->delivered_ml;
+      if (auto r = settle_and_record(volume_ml_, inst_.clock.now(), before_signal); !r)
+        return r;
+      if (stop_condition_met())
         return {};
     }
   }
 
-  Result<void> check_abort() {
-    if (abort_ && abort_->load())
+  RunOutcome evaluate_and_finish() {
+    outcome_.titration_time_s = inst_.clock.now_s() - start_s_;
+    enter(RunState::evaluating, stop_reason_);
+    auto c = curve();
+    if (!c)
+      return end_with_error(c.error());
+    const auto evaluation = detection::find_endpoints_by_derivative(*c, method_.detection);
+    store::EvaluationRecord record;
+    record.method = evaluation.method;
+    record.options_json = evaluation.options.dump();
+    record.flags = flag_names(evaluation.flags);
+    for (const auto& e : evaluation.endpoints) {
+      record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
+                                                       e.steepness, flag_names(e.flags)});
+    }
+    auto evaluation_id = store_.add_evaluation(outcome_.run_id, record);
+    if (!evaluation_id)
+      return end_with_error(evaluation_id.error());
+
+    std::optional<detection::Endpoint> endpoint;
+    if (method_.dosing.kind == DosingKind::approach_preset_signal) {
+      // The endpoint of a titration to a preset signal is where it was held.
+      if (strategy_endpoint_ml_ > 0.0) {
+        detection::Endpoint e;
+        e.volume_ml = strategy_endpoint_ml_;
+        e.signal = method_.dosing.preset_signal;
+        e.uncertainty_ml = inst_.burette.info().cylinder_ml /
+                           std::max(1.0, inst_.burette.info().steps_per_cylinder);
+        endpoint = e;
+      }
+    } else if (!evaluation.endpoints.empty()) {
+      // The endpoint of a single-metal titration is the largest break.
+      const detection::Endpoint* best = &evaluation.endpoints.front();
+      for (const auto& e : evaluation.endpoints) {
+        if (e.steepness > best->steepness)
+          best = &e;
+      }
+      endpoint = *best;
+    }
+    rinse();
+    if (!endpoint) {
+      outcome_.status = store::RunStatus::failed;
+      outcome_.reason = "no endpoint found (" + stop_reason_ + ")";
+      finish(RunState::failed, outcome_.reason);
+      return outcome_;
+    }
+    outcome_.endpoint = endpoint;
+    auto result = compute_metal_result(endpoint->volume_ml, sample_);
+    if (!result)
+      return end_with_error(result.error());
+    outcome_.result = *result;
+    const std::pair<const char*, std::pair<double, const char*>> rows[] = {
+        {"endpoint_volume", {result->endpoint_ml, "mL"}},
+        {"metal_amount", {result->amount_mmol, "mmol"}},
+        {"metal_concentration", {result->conc_mmol_per_l, "mmol/L"}},
+        {"metal_mass_concentration", {result->conc_mg_per_l, "mg/L"}},
+    };
+    for (const auto& [name, value] : rows) {
+      store::ResultRecord r;
+      r.run_id = outcome_.run_id;
+      r.evaluation_id = *evaluation_id;
+      r.name = name;
+      r.value = value.first;
+      r.unit = value.second;
+      if (auto stored = store_.add_result(r); !stored)
+        return end_with_error(stored.error());
+    }
+    outcome_.status = store::RunStatus::completed;
+    outcome_.reason = stop_reason_;
+    finish(RunState::completed, stop_reason_);
+    return outcome_;
+  }
+
+  void rinse() {
+    // No rinsing device is driven yet (the sample changer comes with the
+    // drivers for every role); the state is recorded so that the sequence of
+    // a run reads the same when one is added.
+    enter(RunState::rinsing, "no rinsing device configured: nothing to rinse");
+  }
+
+  // ---- steps --------------------------------------------------------------
+
+  double largest_step_ml() const {
+    switch (method_.dosing.kind) {
+      case DosingKind::fixed_increments:
+        return method_.dosing.increment_ml;
+      default:
+        return method_.dosing.largest_step_ml;
+    }
+  }
+
+  /// Pause waits here; abort ends the run.
+  Result<void> check_controls() {
+    if (!control_)
+      return {};
+    if (control_->abort.load())
       return make_error(ErrorKind::aborted, "aborted by the operator");
+    if (control_->pause.load()) {
+      const RunState was = state_;
+      enter(RunState::paused, "paused by the operator");
+      while (control_->pause.load() && !control_->abort.load()) {
+        inst_.clock.sleep_for(std::chrono::milliseconds(100));
+      }
+      if (control_->abort.load())
+        return make_error(ErrorKind::aborted, "aborted by the operator");
+      enter(was, "resumed by the operator");
+    }
     return {};
   }
 
@@ -129,27 +321,48 @@ class Titration {
       return status.error();
     if (status->cylinder_content_ml + 1e-9 >= needed_ml)
       return {};
-    say("filling the cylinder (" + fixed(status->cylinder_content_ml, 3) + " mL left)");
+    const RunState was = state_;
+    const bool announce = was != RunState::filling;
+    if (announce) {
+      enter(RunState::filling,
+            "cylinder holds " + fixed(status->cylinder_content_ml, 3) + " mL, refilling");
+    }
     auto filled = inst_.burette.fill(method_.fill_rate_ml_per_min);
     if (!filled)
       return filled.error();
+    if (filled->cylinder_content_ml + 1e-9 < needed_ml) {
+      return make_error(ErrorKind::device_fault,
+                        "the cylinder holds only " + fixed(filled->cylinder_content_ml, 3) +
+                            " mL after filling: the titrant reservoir is empty");
+    }
+    if (announce)
+      enter(was, "cylinder refilled");
     return {};
   }
 
   /// Reads until the drift rule accepts a reading, then stores the point.
-  Result<void> settle_and_record(double volume_ml, drivers::Duration dose_end) {
-    const auto& rule = method_.settling;
+  Result<void> settle_and_record(double volume_ml, drivers::Duration dose_end,
+                                 double before_signal) {
+    SettlingRule rule = method_.settling;
     std::vector<double> times;
     std::vector<double> values;
     drivers::PotentialReading last{};
     double drift = 0.0;
+    bool slow = false;
     while (true) {
-      if (auto r = check_abort(); !r)
+      if (auto r = check_controls(); !r)
         return r;
       auto reading = inst_.sensor.read();
       if (!reading)
         return reading.error();
       last = *reading;
+      if (!slow && !signals_.empty() && rule.slow_reaction_factor > 1.0 &&
+          std::abs(reading->potential_mv - before_signal) > rule.slow_change) {
+        // Near the endpoint of a slow metal: wait longer, judge drift over longer.
+        slow = true;
+        rule.min_wait_s *= rule.slow_reaction_factor;
+        rule.window_s *= rule.slow_reaction_factor;
+      }
       const double t = drivers::to_seconds(inst_.clock.now() - dose_end);
       times.push_back(t);
       values.push_back(reading->potential_mv);
@@ -203,7 +416,30 @@ class Titration {
     return detection::Curve::from_columns(std::move(c));
   }
 
-  bool past_endpoint(double volume_ml) {
+  /// The method's stop conditions, checked after each stored point.
+  bool stop_condition_met() {
+    const double v = volume_ml_;
+    if (method_.use_signal_limit && signals_.size() >= 2) {
+      const double first = signals_.front();
+      const double now = signals_.back();
+      if ((first - method_.signal_limit) * (now - method_.signal_limit) <= 0.0) {
+        stop_reason_ = "signal reached the limit of " + fixed(method_.signal_limit, 1);
+        return true;
+      }
+    }
+    if (v >= method_.max_volume_ml - 1e-9) {
+      stop_reason_ = "maximum volume of " + fixed(method_.max_volume_ml, 2) + " mL reached";
+      return true;
+    }
+    if (strategy_->decides_its_own_end())
+      return false;
+    if (method_.expected_endpoint_ml > 0.0 &&
+        v >= method_.expected_endpoint_ml + method_.volume_past_endpoint_ml - 1e-9) {
+      stop_reason_ = "stopped " + fixed(method_.volume_past_endpoint_ml, 2) +
+                     " mL past the expected endpoint at " + fixed(method_.expected_endpoint_ml, 3) +
+                     " mL";
+      return true;
+    }
     if (volumes_.size() < 5)
       return false;
     auto c = curve();
@@ -216,7 +452,7 @@ class Titration {
     if (detection::has_flag(last.flags, detection::QualityFlag::few_points_after_endpoint)) {
       return false;
     }
-    if (volume_ml >= last.volume_ml + method_.volume_past_endpoint_ml - 1e-9) {
+    if (v >= last.volume_ml + method_.volume_past_endpoint_ml - 1e-9) {
       stop_reason_ = "stopped " + fixed(method_.volume_past_endpoint_ml, 2) +
                      " mL past the endpoint at " + fixed(last.volume_ml, 3) + " mL";
       return true;
@@ -224,74 +460,46 @@ class Titration {
     return false;
   }
 
+  // ---- records ------------------------------------------------------------
+
+  void enter(RunState to, const std::string& reason) {
+    const RunState from = state_;
+    state_ = to;
+    store::RunEvent e;
+    e.time_s = inst_.clock.now_s();
+    e.from_state = static_cast<int>(from);
+    e.to_state = static_cast<int>(to);
+    e.reason = reason;
+    if (auto r = store_.record_event(outcome_.run_id, e); !r) {
+      say("could not record the change to " + std::string(run_state_name(to)) + ": " +
+          r.error().message);
+    }
+    if (observer_)
+      observer_->on_state(from, to, reason);
+  }
+
+  void finish(RunState state, const std::string& reason) {
+    enter(state, reason);
+    outcome_.final_state = state;
+    if (auto r = store_.finish_run(outcome_.run_id, outcome_.status, reason); !r) {
+      outcome_.reason += "; " + r.error().describe();
+    }
+  }
+
   RunOutcome end_with_error(const Error& error) {
     // Stop dosing first, then record why.
     auto stopped = inst_.burette.stop();
     outcome_.burette_stopped = stopped.has_value();
-    outcome_.status =
-        error.kind == ErrorKind::aborted ? store::RunStatus::aborted : store::RunStatus::failed;
+    if (outcome_.titration_time_s == 0.0 && start_s_ > 0.0) {
+      outcome_.titration_time_s = inst_.clock.now_s() - start_s_;
+    }
+    const bool aborted = error.kind == ErrorKind::aborted;
+    outcome_.status = aborted ? store::RunStatus::aborted : store::RunStatus::failed;
     outcome_.reason = error.describe();
     if (!stopped)
       outcome_.reason += "; stop command not confirmed: " + stopped.error().message;
     say("run ended: " + outcome_.reason);
-    (void)store_.finish_run(outcome_.run_id, outcome_.status, outcome_.reason);
-    return outcome_;
-  }
-
-  RunOutcome evaluate_and_finish() {
-    auto c = curve();
-    if (!c)
-      return end_with_error(c.error());
-    const auto evaluation = detection::find_endpoints_by_derivative(*c, method_.detection);
-    store::EvaluationRecord record;
-    record.method = evaluation.method;
-    record.options_json = evaluation.options.dump();
-    record.flags = flag_names(evaluation.flags);
-    for (const auto& e : evaluation.endpoints) {
-      record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
-                                                       e.steepness, flag_names(e.flags)});
-    }
-    auto evaluation_id = store_.add_evaluation(outcome_.run_id, record);
-    if (!evaluation_id)
-      return end_with_error(evaluation_id.error());
-    if (evaluation.endpoints.empty()) {
-      outcome_.status = store::RunStatus::failed;
-      outcome_.reason = "no endpoint found (" + stop_reason_ + ")";
-      (void)store_.finish_run(outcome_.run_id, outcome_.status, outcome_.reason);
-      return outcome_;
-    }
-    // The endpoint of a single-metal titration is the largest break.
-    const detection::Endpoint* best = &evaluation.endpoints.front();
-    for (const auto& e : evaluation.endpoints) {
-      if (e.steepness > best->steepness)
-        best = &e;
-    }
-    outcome_.endpoint = *best;
-    auto result = compute_metal_result(best->volume_ml, sample_);
-    if (!result)
-      return end_with_error(result.error());
-    outcome_.result = *result;
-    const std::pair<const char*, std::pair<double, const char*>> rows[] = {
-        {"endpoint_volume", {result->endpoint_ml, "mL"}},
-        {"metal_amount", {result->amount_mmol, "mmol"}},
-        {"metal_concentration", {result->conc_mmol_per_l, "mmol/L"}},
-        {"metal_mass_concentration", {result->conc_mg_per_l, "mg/L"}},
-    };
-    for (const auto& [name, value] : rows) {
-      store::ResultRecord r;
-      r.run_id = outcome_.run_id;
-      r.evaluation_id = *evaluation_id;
-      r.name = name;
-      r.value = value.first;
-      r.unit = value.second;
-      if (auto stored = store_.add_result(r); !stored)
-        return end_with_error(stored.error());
-    }
-    outcome_.status = store::RunStatus::completed;
-    outcome_.reason = stop_reason_;
-    if (auto r = store_.finish_run(outcome_.run_id, outcome_.status, outcome_.reason); !r) {
-      outcome_.reason += "; " + r.error().describe();
-    }
+    finish(aborted ? RunState::aborted : RunState::failed, outcome_.reason);
     return outcome_;
   }
 
@@ -303,23 +511,59 @@ class Titration {
   Instruments& inst_;
   store::RunStore& store_;
   const SampleDescription& sample_;
-  const FixedIncrementMethod& method_;
+  const TitrationMethod& method_;
   RunObserver* observer_;
-  const std::atomic<bool>* abort_;
+  RunControl* control_;
+  std::unique_ptr<DosingStrategy> strategy_;
   RunOutcome outcome_;
+  RunState state_ = RunState::starting;
   std::string stop_reason_;
+  double volume_ml_ = 0.0;
+  double start_s_ = 0.0;
+  double strategy_endpoint_ml_ = 0.0;
   std::vector<double> volumes_, signals_, times_, temperatures_;
 };
 
 }  // namespace
 
-nlohmann::json to_json(const FixedIncrementMethod& m) {
-  return {
+const char* run_state_name(RunState state) {
+  switch (state) {
+    case RunState::starting:
+      return "starting";
+    case RunState::preparing:
+      return "preparing";
+    case RunState::filling:
+      return "filling";
+    case RunState::initial_addition:
+      return "initial addition";
+    case RunState::titrating:
+      return "titrating";
+    case RunState::evaluating:
+      return "evaluating";
+    case RunState::rinsing:
+      return "rinsing";
+    case RunState::paused:
+      return "paused";
+    case RunState::completed:
+      return "completed";
+    case RunState::failed:
+      return "failed";
+    case RunState::aborted:
+      return "aborted";
+  }
+  return "unknown";
+}
+
+nlohmann::json to_json(const TitrationMethod& m) {
+  nlohmann::json j = {
       {"name", m.name},
-      {"dosing", "fixed increments"},
-      {"increment_ml", m.increment_ml},
+      {"dosing", to_json(m.dosing)},
+      {"initial_volume_ml", m.initial_volume_ml},
       {"max_volume_ml", m.max_volume_ml},
       {"volume_past_endpoint_ml", m.volume_past_endpoint_ml},
+      {"expected_endpoint_ml", m.expected_endpoint_ml},
+      {"time_limit_s", m.time_limit_s},
+      {"vessel_capacity_ml", m.vessel_capacity_ml},
       {"dose_rate_ml_per_min", m.dose_rate_ml_per_min},
       {"fill_rate_ml_per_min", m.fill_rate_ml_per_min},
       {"settling",
@@ -327,9 +571,14 @@ nlohmann::json to_json(const FixedIncrementMethod& m) {
         {"drift_limit_per_min", m.settling.drift_limit_per_min},
         {"min_wait_s", m.settling.min_wait_s},
         {"max_wait_s", m.settling.max_wait_s},
-        {"read_interval_s", m.settling.read_interval_s}}},
+        {"read_interval_s", m.settling.read_interval_s},
+        {"slow_reaction_factor", m.settling.slow_reaction_factor},
+        {"slow_change", m.settling.slow_change}}},
       {"detection", {{"method", "derivative"}, {"options", detection::to_json(m.detection)}}},
   };
+  if (m.use_signal_limit)
+    j["signal_limit"] = m.signal_limit;
+  return j;
 }
 
 Result<MetalResult> compute_metal_result(double endpoint_ml, const SampleDescription& s) {
@@ -367,11 +616,10 @@ double least_squares_slope_per_min(const std::vector<double>& t, const std::vect
   return sxx > 0.0 ? sxy / sxx * 60.0 : 0.0;
 }
 
-RunOutcome run_fixed_increment_titration(Instruments& instruments, store::RunStore& store,
-                                         const SampleDescription& sample,
-                                         const FixedIncrementMethod& method, RunObserver* observer,
-                                         const std::atomic<bool>* abort) {
-  return Titration(instruments, store, sample, method, observer, abort).run();
+RunOutcome run_titration(Instruments& instruments, store::RunStore& store,
+                         const SampleDescription& sample, const TitrationMethod& method,
+                         RunObserver* observer, RunControl* control) {
+  return Titration(instruments, store, sample, method, observer, control).run();
 }
 
 }  // namespace veq::controller

@@ -1,6 +1,8 @@
-// A fixed-increment titration as a plain sequential procedure: fill, add
-// increments, accept settled readings, store every point as it is measured,
-// stop past the endpoint, evaluate and compute the result.
+// A titration as a plain sequential procedure that walks through recorded
+// states: prepare, fill, initial addition, titrate, evaluate, rinse. It adds
+// titrant as its dosing strategy says, accepts settled readings, stores every
+// point as it is measured, stops on the method's stop conditions, evaluates
+// and computes the result.
 #pragma once
 
 #include <atomic>
@@ -11,6 +13,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "controller/dosing.hpp"
 #include "controller/store/run_store.hpp"
 #include "detection/derivative.hpp"
 #include "drivers/burette_client.hpp"
@@ -34,20 +37,38 @@ struct SettlingRule {
   double max_wait_s = 60.0;
   /// Time between readings while waiting (s).
   double read_interval_s = 1.0;
+  /// For metals that react slowly: when the last dose moved the signal by more
+  /// than `slow_change` (a sign of the steep region near the endpoint), the
+  /// shortest wait and the drift window are multiplied by this factor. 1 = off.
+  double slow_reaction_factor = 1.0;
+  double slow_change = 10.0;
 };
 
-/// Settings of a fixed-increment titration.
-struct FixedIncrementMethod {
-  std::string name = "fixed increments";
-  double increment_ml = 0.05;            ///< volume of every dose, mL
-  double max_volume_ml = 25.0;           ///< never dose beyond this burette reading, mL
-  double volume_past_endpoint_ml = 1.0;  ///< stop this far past a found endpoint, mL
-  double dose_rate_ml_per_min = 10.0;    ///< dosing rate, mL/min
-  double fill_rate_ml_per_min = 30.0;    ///< cylinder filling rate, mL/min
+/// Settings of a titration.
+struct TitrationMethod {
+  std::string name = "titration";
+  DosingPlan dosing;
+  double initial_volume_ml = 0.0;  ///< added at once before the first reading, mL
+  double max_volume_ml = 25.0;     ///< never dose beyond this burette reading, mL
+  /// Stop this far past the last endpoint found by detection, mL (strategies
+  /// that decide their own end use their own rule).
+  double volume_past_endpoint_ml = 1.0;
+  /// Volume the lab expects the endpoint at (0: unknown). With it the run
+  /// checks the reservoir before starting and stops `volume_past_endpoint_ml`
+  /// past it even without a detected endpoint.
+  double expected_endpoint_ml = 0.0;
+  /// Stop when the signal passes this value in either direction (0 with
+  /// use_signal_limit false: no limit).
+  bool use_signal_limit = false;
+  double signal_limit = 0.0;
+  double time_limit_s = 7200.0;        ///< stop titrating after this long, s
+  double vessel_capacity_ml = 150.0;   ///< sample plus titrant must stay below this, mL
+  double dose_rate_ml_per_min = 10.0;  ///< dosing rate, mL/min
+  double fill_rate_ml_per_min = 30.0;  ///< cylinder filling rate, mL/min
   SettlingRule settling;
   detection::DerivativeOptions detection;
 };
-nlohmann::json to_json(const FixedIncrementMethod& method);
+nlohmann::json to_json(const TitrationMethod& method);
 
 /// What is being titrated, as the lab knows it (no hidden truths).
 struct SampleDescription {
@@ -79,12 +100,35 @@ struct Instruments {
   drivers::Clock& clock;
 };
 
+/// States of a run (stored in run events: append-only values).
+enum class RunState : int {
+  starting = 0,
+  preparing = 1,         ///< devices answer, titrant enough, vessel large enough
+  filling = 2,           ///< cylinder refilled from the reservoir
+  initial_addition = 3,  ///< a set volume added at once
+  titrating = 4,
+  evaluating = 5,
+  rinsing = 6,
+  paused = 7,
+  completed = 8,
+  failed = 9,
+  aborted = 10,
+};
+const char* run_state_name(RunState state);
+
+/// Operator controls, set from any thread, checked by the run between steps.
+struct RunControl {
+  std::atomic<bool> abort{false};
+  std::atomic<bool> pause{false};
+};
+
 /// Hears what a run does (the command line prints it, the ui plots it).
 class RunObserver {
  public:
   virtual ~RunObserver() = default;
   virtual void on_point(const store::PointRecord&) {}
   virtual void on_message(const std::string&) {}
+  virtual void on_state(RunState /*from*/, RunState /*to*/, const std::string& /*reason*/) {}
 };
 
 /// How a run ended.
@@ -95,7 +139,9 @@ struct RunOutcome {
   std::size_t point_count = 0;
   std::optional<detection::Endpoint> endpoint;
   std::optional<MetalResult> result;
-  bool burette_stopped = true;  ///< false only if a stop command could not be confirmed
+  bool burette_stopped = true;    ///< false only if a stop command could not be confirmed
+  double titration_time_s = 0.0;  ///< from the first reading to the end of titrating, s
+  RunState final_state = RunState::failed;
 };
 
 /// Least-squares slope of values against times, per minute (values/min).
@@ -103,13 +149,12 @@ double least_squares_slope_per_min(const std::vector<double>& times_s,
                                    const std::vector<double>& values);
 
 /// Runs one titration. Every point is durable in the store before the next
-/// dose is commanded. On any device error the burette is told to stop first,
-/// then the run is ended with the reason; points already stored stay.
-/// `abort`, if given, is checked between steps.
-RunOutcome run_fixed_increment_titration(Instruments& instruments, store::RunStore& store,
-                                         const SampleDescription& sample,
-                                         const FixedIncrementMethod& method,
-                                         RunObserver* observer = nullptr,
-                                         const std::atomic<bool>* abort = nullptr);
+/// dose is commanded; every state transition is recorded with its time and
+/// reason. On any device error the burette is told to stop first, then the
+/// run is ended with the reason; points already stored stay. `control`, if
+/// given, is checked between steps (pause, resume, abort).
+RunOutcome run_titration(Instruments& instruments, store::RunStore& store,
+                         const SampleDescription& sample, const TitrationMethod& method,
+                         RunObserver* observer = nullptr, RunControl* control = nullptr);
 
 }  // namespace veq::controller

@@ -36,6 +36,12 @@ Result<BuretteStatus> parse_status(const protocol::Message& reply, const std::st
     return make_error(ErrorKind::garbled, device + ": " + delivered.error().message);
   s.cylinder_content_ml = *content;
   s.delivered_ml = *delivered;
+  if (reply.find("reservoir_ml")) {
+    auto reservoir = reply.number("reservoir_ml");
+    if (!reservoir)
+      return make_error(ErrorKind::garbled, device + ": " + reservoir.error().message);
+    s.reservoir_ml = *reservoir;
+  }
   auto fault = reply.find("fault");
   s.fault = fault ? std::string(*fault) : "none";
   return s;

@@ -24,7 +24,9 @@ struct BuretteStatus {
   BuretteState state = BuretteState::idle;
   double cylinder_content_ml = 0.0;  ///< titrant left in the cylinder, mL
   double delivered_ml = 0.0;         ///< delivered since the last counter reset, mL
-  std::string fault;                 ///< "none", "stalled", "empty", "host_silent"...
+  /// Titrant left in the reservoir bottle, mL; negative if the device cannot tell.
+  double reservoir_ml = -1.0;
+  std::string fault;  ///< "none", "stalled", "empty", "host_silent"...
 };
 
 /// Tuning of the host's handling of a burette.

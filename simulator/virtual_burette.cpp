@@ -115,6 +115,7 @@ protocol::Message VirtualBurette::status_reply(std::uint32_t sequence) const {
   m.add("state", state);
   m.add("cylinder_ml", content, 5);
   m.add("delivered_ml", counter_ml(), 5);
+  m.add("reservoir_ml", spec_.reservoir_ml, 2);
   m.add("last_stop", last_stop_);
   m.add("fault", last_stop_ == "host_silence" ? "host_silent" : "none");
   return m;

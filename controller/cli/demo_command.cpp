@@ -155,7 +155,7 @@ int run_demo(const DemoOptions& options) {
   std::unique_ptr<store::SqliteStore> stores[kSamples];
   std::unique_ptr<PrintingObserver> observers[kSamples];
   std::unique_ptr<controller::RunWorker> workers[kSamples];
-  controller::FixedIncrementMethod method;
+  controller::TitrationMethod method;
   method.name = "calcium, fixed 0.05 mL increments";
   for (int i = 0; i < kSamples; ++i) {
     const auto& s = samples[i];
@@ -179,7 +179,7 @@ int run_demo(const DemoOptions& options) {
     d.metal = truths[i].sample.metal;
     d.titrant_name = truths[i].titrant.name;
     d.titrant_conc_mol_per_l = truths[i].titrant.label_conc_mol_per_l;
-    controller::FixedIncrementMethod m = method;
+    controller::TitrationMethod m = method;
     m.max_volume_ml =
         std::min(40.0, 2.5 * truths[i].sample.metal_conc_mol_per_l * truths[i].sample.volume_ml /
                            truths[i].titrant.label_conc_mol_per_l);

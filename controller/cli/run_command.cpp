@@ -28,7 +28,7 @@ struct RunOptions {
   std::string burette;
   std::string electrode;
   controller::SampleDescription sample;
-  controller::FixedIncrementMethod method;
+  controller::TitrationMethod method;
   double time_scale = 1.0;
   int host_silence_limit_ms = 3000;
 };
@@ -123,7 +123,7 @@ void add_run_command(CLI::App& app) {
   run->add_option("--molar-mass", o->sample.metal_molar_mass_g_per_mol,
                   "molar mass of the metal, g/mol (for mg/L)")
       ->capture_default_str();
-  run->add_option("--increment-ml", o->method.increment_ml, "volume of each dose, mL")
+  run->add_option("--increment-ml", o->method.dosing.increment_ml, "volume of each dose, mL")
       ->capture_default_str();
   run->add_option("--max-volume-ml", o->method.max_volume_ml, "never dose beyond this, mL")
       ->capture_default_str();

@@ -90,6 +90,15 @@ struct ResultRecord {
   std::string unit;
 };
 
+/// A state transition of a run (states are controller::RunState values).
+struct RunEvent {
+  double time_s = 0.0;  ///< run clock time of the transition, s
+  int from_state = 0;
+  int to_state = 0;
+  std::string reason;
+  std::string recorded_utc;  ///< filled in by the store
+};
+
 class RunStore {
  public:
   virtual ~RunStore() = default;
@@ -111,6 +120,9 @@ class RunStore {
   virtual Result<std::vector<PointRecord>> load_points(std::int64_t run_id) = 0;
   virtual Result<std::vector<EvaluationRecord>> load_evaluations(std::int64_t run_id) = 0;
   virtual Result<std::vector<ResultRecord>> load_results(std::int64_t run_id) = 0;
+  /// Records a state transition; durable when it returns.
+  virtual Result<void> record_event(std::int64_t run_id, const RunEvent& event) = 0;
+  virtual Result<std::vector<RunEvent>> load_events(std::int64_t run_id) = 0;
 };
 
 }  // namespace veq::store

@@ -87,6 +87,23 @@ CREATE TABLE results (
 CREATE INDEX evaluations_by_run ON evaluations(run_id);
 CREATE INDEX results_by_run ON results(run_id);
 )sql",
+    // 2: every state transition of a run, with its time and reason.
+    R"sql(
+CREATE TABLE run_events (
+  run_id INTEGER NOT NULL REFERENCES runs(id),
+  idx INTEGER NOT NULL,
+  time_s REAL NOT NULL,
+  from_state INTEGER NOT NULL,
+  to_state INTEGER NOT NULL,
+  reason TEXT NOT NULL,
+  recorded_utc TEXT NOT NULL,
+  PRIMARY KEY (run_id, idx)
+) WITHOUT ROWID;
+CREATE TRIGGER run_events_are_unchangeable BEFORE UPDATE ON run_events
+BEGIN SELECT RAISE(ABORT, 'run events cannot be changed'); END;
+CREATE TRIGGER run_events_are_undeletable BEFORE DELETE ON run_events
+BEGIN SELECT RAISE(ABORT, 'run events cannot be deleted'); END;
+)sql",
 };
 constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
 static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");
@@ -460,6 +477,39 @@ Result<std::int64_t> SqliteStore::import_run(const NewRun& run,
     return r.error();
   }
   return *id;
+}
+
+Result<void> SqliteStore::record_event(std::int64_t run_id, const RunEvent& e) {
+  Statement s(db_,
+              "INSERT INTO run_events (run_id, idx, time_s, from_state, to_state, reason, "
+              "recorded_utc) VALUES (?1, (SELECT IFNULL(MAX(idx), -1) + 1 FROM run_events "
+              "WHERE run_id = ?1), ?2, ?3, ?4, ?5, ?6)");
+  s.bind(1, run_id)
+      .bind(2, e.time_s)
+      .bind(3, e.from_state)
+      .bind(4, e.to_state)
+      .bind(5, e.reason)
+      .bind(6, utc_now_iso8601());
+  if (s.step() != SQLITE_DONE) {
+    return storage_error("cannot record an event of run " + std::to_string(run_id));
+  }
+  return {};
+}
+
+Result<std::vector<RunEvent>> SqliteStore::load_events(std::int64_t run_id) {
+  Statement s(db_,
+              "SELECT time_s, from_state, to_state, reason, recorded_utc FROM run_events "
+              "WHERE run_id = ?1 ORDER BY idx");
+  s.bind(1, run_id);
+  std::vector<RunEvent> out;
+  int rc;
+  while ((rc = s.step()) == SQLITE_ROW) {
+    out.push_back(RunEvent{s.real(0), static_cast<int>(s.integer(1)),
+                           static_cast<int>(s.integer(2)), s.text(3), s.text(4)});
+  }
+  if (rc != SQLITE_DONE)
+    return storage_error("cannot read events of run " + std::to_string(run_id));
+  return out;
 }
 
 Result<RunRecord> SqliteStore::load_run(std::int64_t run_id) {

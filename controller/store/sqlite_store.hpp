@@ -11,7 +11,7 @@ struct sqlite3;
 namespace veq::store {
 
 /// Schema version this build writes; older files are migrated on open.
-inline constexpr int kSchemaVersion = 1;
+inline constexpr int kSchemaVersion = 2;
 
 /// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
 std::string default_database_path();
@@ -40,6 +40,8 @@ class SqliteStore final : public RunStore {
   Result<std::vector<PointRecord>> load_points(std::int64_t run_id) override;
   Result<std::vector<EvaluationRecord>> load_evaluations(std::int64_t run_id) override;
   Result<std::vector<ResultRecord>> load_results(std::int64_t run_id) override;
+  Result<void> record_event(std::int64_t run_id, const RunEvent& event) override;
+  Result<std::vector<RunEvent>> load_events(std::int64_t run_id) override;
 
   /// Runs still marked running when the store was opened, now marked interrupted.
   int interrupted_on_open() const { return interrupted_on_open_; }

@@ -33,7 +33,7 @@ struct OverPty {
   std::unique_ptr<store::SqliteStore> store =
       std::move(store::SqliteStore::open(":memory:")).value();
   SampleDescription sample;
-  FixedIncrementMethod method;
+  TitrationMethod method;
 
   explicit OverPty(const simulator::Scenario& scenario) {
     simulator::PseudoTerminalBenchOptions options;

@@ -36,8 +36,8 @@ struct Worker : ::testing::Test {
 };
 
 TEST_F(Worker, AbortFromAnotherThreadStopsTheBuretteAndKeepsThePoints) {
-  FixedIncrementMethod method;
-  method.increment_ml = 0.5;  // long doses, so an abort is likely to catch one
+  TitrationMethod method;
+  method.dosing.increment_ml = 0.5;  // long doses, so an abort is likely to catch one
   method.dose_rate_ml_per_min = 2.0;
   RunWorker worker(instruments, *store, sample, method);
   worker.start();
@@ -61,7 +61,7 @@ TEST_F(Worker, AbortFromAnotherThreadStopsTheBuretteAndKeepsThePoints) {
 TEST_F(Worker, DestroyingARunningWorkerAbortsAndJoins) {
   std::int64_t run_id = 0;
   {
-    FixedIncrementMethod method;
+    TitrationMethod method;
     RunWorker worker(instruments, *store, sample, method);
     worker.start();
     std::this_thread::sleep_for(std::chrono::milliseconds(100));

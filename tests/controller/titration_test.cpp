@@ -30,7 +30,7 @@ struct Trial {
   std::unique_ptr<drivers::PotentialSensorClient> sensor;
   std::unique_ptr<store::SqliteStore> store;
   SampleDescription sample;
-  FixedIncrementMethod method;
+  TitrationMethod method;
 
   explicit Trial(simulator::Scenario s) : scenario(std::move(s)) {
     bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
@@ -46,9 +46,9 @@ struct Trial {
     method.max_volume_ml = 20.0;
   }
 
-  RunOutcome run(const std::atomic<bool>* abort = nullptr) {
+  RunOutcome run(RunControl* control = nullptr, RunObserver* observer = nullptr) {
     Instruments instruments{*burette, *sensor, clock};
-    return run_fixed_increment_titration(instruments, *store, sample, method, nullptr, abort);
+    return run_titration(instruments, *store, sample, method, observer, control);
   }
 };
 
@@ -65,7 +65,7 @@ TEST(FixedIncrementTitration, FindsTheEquivalenceWithinTwoTenthsOfAPercentOver50
     scenario.sample.metal_conc_mol_per_l = content(draw);
     scenario.electrode.noise_mv = 0.1;
     Trial trial(scenario);
-    trial.method.increment_ml = 0.05;
+    trial.method.dosing.increment_ml = 0.05;
     const auto outcome = trial.run();
     ASSERT_EQ(outcome.status, store::RunStatus::completed)
         << "seed " << seed << ": " << outcome.reason;
@@ -173,8 +173,9 @@ TEST(FixedIncrementTitration, GarbledBuretteReplyEndsTheRunSafely) {
 
 TEST(FixedIncrementTitration, AbortStopsAndRecords) {
   Trial trial(demo_scenario());
-  std::atomic<bool> abort{true};
-  const auto outcome = trial.run(&abort);
+  RunControl control;
+  control.abort = true;
+  const auto outcome = trial.run(&control);
   EXPECT_EQ(outcome.status, store::RunStatus::aborted);
   EXPECT_NE(outcome.reason.find("aborted by the operator"), std::string::npos);
   EXPECT_FALSE(trial.bench->burette().moving());

@@ -1,0 +1,395 @@
+#include "controller/dosing.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include "detection/curve.hpp"
+#include "detection/derivative.hpp"
+
+namespace veq::controller {
+
+namespace {
+
+using nlohmann::json;
+
+double last_step_ml(const CurveSoFar& c) {
+  const auto n = c.volume_ml.size();
+  return n >= 2 ? c.volume_ml[n - 1] - c.volume_ml[n - 2] : 0.0;
+}
+
+/// |dSignal/dV| over the last step, or 0 with fewer than two distinct volumes.
+double last_slope(const CurveSoFar& c) {
+  const auto n = c.volume_ml.size();
+  if (n < 2)
+    return 0.0;
+  const double dv = c.volume_ml[n - 1] - c.volume_ml[n - 2];
+  if (dv <= 0.0)
+    return 0.0;
+  return std::abs(c.signal[n - 1] - c.signal[n - 2]) / dv;
+}
+
+class FixedIncrements final : public DosingStrategy {
+ public:
+  explicit FixedIncrements(const DosingPlan& p) : plan_(p) {}
+  DoseDecision next(const CurveSoFar&) override { return {plan_.increment_ml, false, {}, 0.0}; }
+
+ private:
+  DosingPlan plan_;
+};
+
+/// Steps sized so that the signal moves by about target_signal_step, from the
+/// slope of the last step; bounded by the smallest and largest step and by the
+/// growth limit.
+class AdaptiveIncrements final : public DosingStrategy {
+ public:
+  explicit AdaptiveIncrements(const DosingPlan& p) : plan_(p) {}
+  DoseDecision next(const CurveSoFar& c) override {
+    double step = plan_.largest_step_ml;
+    const double slope = last_slope(c);
+    if (slope > 0.0)
+      step = plan_.target_signal_step / slope;
+    const double previous = last_step_ml(c);
+    if (previous > 0.0)
+      step = std::min(step, previous * plan_.largest_growth);
+    if (c.volume_ml.size() < 2)
+      step = plan_.smallest_step_ml * 5.0;  // a first, modest probe
+    step = std::clamp(step, plan_.smallest_step_ml, plan_.largest_step_ml);
+    return {step, false, {}, 0.0};
+  }
+
+ private:
+  DosingPlan plan_;
+};
+
+/// Towards a preset signal in steps that shrink with the distance left, then
+/// hold it: if the signal drifts back out of the tolerance (a slow reaction),
+/// add the smallest step again; finished when it stayed for hold_s.
+class ApproachPresetSignal final : public DosingStrategy {
+ public:
+  explicit ApproachPresetSignal(const DosingPlan& p) : plan_(p) {}
+  bool decides_its_own_end() const override { return true; }
+  DoseDecision next(const CurveSoFar& c) override {
+    const double v = c.volume_ml.back();
+    const double e = c.signal.back();
+    const double distance = plan_.preset_signal - e;
+    if (std::abs(distance) <= plan_.preset_tolerance) {
+      // Reached: hold it, re-reading until it has stayed long enough.
+      if (!holding_) {
+        holding_ = true;
+        held_at_ml_ = v;
+        held_s_ = 0.0;
+      }
+      if (held_s_ >= plan_.hold_s) {
+        return {0.0, true, "preset signal held for " + std::to_string(plan_.hold_s) + " s", v};
+      }
+      const double wait = std::min(plan_.hold_s / 3.0, plan_.hold_s - held_s_);
+      held_s_ += wait;
+      DoseDecision d{0.0, false, {}, 0.0};
+      d.wait_s = wait;
+      return d;
+    }
+    holding_ = false;
+    if (c.volume_ml.size() >= 2 && direction_ == 0.0) {
+      direction_ = (c.signal.back() - c.signal.front()) >= 0 ? 1.0 : -1.0;
+    }
+    // Past the preset signal (the signal moved beyond it): nothing more to add.
+    if (direction_ != 0.0 && distance * direction_ < 0.0) {
+      return {0.0, true, "signal went past the preset value", v};
+    }
+    double step = plan_.largest_step_ml;
+    const double slope = last_slope(c);
+    // Half the distance at the present slope: the steps shrink geometrically.
+    if (slope > 0.0)
+      step = 0.5 * std::abs(distance) / slope;
+    const double previous = last_step_ml(c);
+    if (previous > 0.0)
+      step = std::min(step, previous * plan_.largest_growth);
+    if (c.volume_ml.size() < 2)
+      step = plan_.smallest_step_ml * 5.0;
+    step = std::clamp(step, plan_.smallest_step_ml, plan_.largest_step_ml);
+    return {step, false, {}, 0.0};
+  }
+
+ private:
+  DosingPlan plan_;
+  bool holding_ = false;
+  double held_at_ml_ = 0.0;
+  double held_s_ = 0.0;
+  double direction_ = 0.0;
+};
+
+/// Fits the metal-excess branch of the 1:1 curve, E = a + b log10((Ve - V) /
+/// (V0 + V)), to the points before the break: linear in a and b for a given
+/// equivalence volume Ve, so Ve is found by a one-dimensional search of the
+/// residual. Returns Ve, or NaN when the points do not define it.
+double predict_equivalence_ml(const std::vector<double>& v, const std::vector<double>& e,
+                              double sample_volume_ml, double min_ve) {
+  const std::size_t n = v.size();
+  if (n < 4 || sample_volume_ml <= 0.0)
+    return std::numeric_limits<double>::quiet_NaN();
+  auto residual = [&](double ve, double* slope) {
+    double sx = 0, sy = 0, sxx = 0, sxy = 0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double x = std::log10((ve - v[i]) / (sample_volume_ml + v[i]));
+      sx += x;
+      sy += e[i];
+      sxx += x * x;
+      sxy += x * e[i];
+    }
+    const double dn = static_cast<double>(n);
+    const double den = dn * sxx - sx * sx;
+    if (den <= 1e-300)
+      return std::numeric_limits<double>::infinity();
+    const double b = (dn * sxy - sx * sy) / den;
+    const double a = (sy - b * sx) / dn;
+    double r = 0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double x = std::log10((ve - v[i]) / (sample_volume_ml + v[i]));
+      r += (e[i] - a - b * x) * (e[i] - a - b * x);
+    }
+    if (slope)
+      *slope = b;
+    return r;
+  };
+  // Scan Ve on a logarithmic grid above the last volume, then refine by golden section.
+  const double lo = std::max(min_ve, v.back()) + 1e-6;
+  double best = std::numeric_limits<double>::quiet_NaN();
+  double best_r = std::numeric_limits<double>::infinity();
+  double step = 1.05;
+  int best_i = -1;
+  std::vector<double> grid;
+  for (double ve = lo + 0.01; ve < lo + 200.0; ve = lo + (ve - lo) * step)
+    grid.push_back(ve);
+  for (std::size_t i = 0; i < grid.size(); ++i) {
+    const double r = residual(grid[i], nullptr);
+    if (r < best_r) {
+      best_r = r;
+      best = grid[i];
+      best_i = static_cast<int>(i);
+    }
+  }
+  if (best_i <= 0 || best_i + 1 >= static_cast<int>(grid.size())) {
+    return std::numeric_limits<double>::quiet_NaN();  // no interior minimum: not yet defined
+  }
+  double a = grid[static_cast<std::size_t>(best_i) - 1];
+  double b = grid[static_cast<std::size_t>(best_i) + 1];
+  const double g = (std::sqrt(5.0) - 1.0) / 2.0;
+  for (int it = 0; it < 60; ++it) {
+    const double c1 = b - g * (b - a);
+    const double c2 = a + g * (b - a);
+    if (residual(c1, nullptr) < residual(c2, nullptr)) {
+      b = c2;
+    } else {
+      a = c1;
+    }
+  }
+  best = 0.5 * (a + b);
+  double slope = 0.0;
+  residual(best, &slope);
+  // A real metal-ion electrode curve falls or rises by tens of mV per decade;
+  // a tiny fitted slope means the points only hold noise.
+  if (std::abs(slope) < 5.0)
+    return std::numeric_limits<double>::quiet_NaN();
+  return best;
+}
+
+/// Model-guided dosing: predicts the equivalence volume from the curve before
+/// the break, doses in large steps up to the edge of the endpoint zone, walks
+/// through the zone in the smallest steps, and stops once the endpoint is
+/// known to the required uncertainty with enough points past it.
+class ModelGuided final : public DosingStrategy {
+ public:
+  ModelGuided(const DosingPlan& p, double sample_volume_ml)
+      : plan_(p), sample_volume_ml_(sample_volume_ml) {}
+  bool decides_its_own_end() const override { return true; }
+
+  DoseDecision next(const CurveSoFar& c) override {
+    const double v = c.volume_ml.back();
+    // Has the break been seen? Ask the derivative method on the curve so far.
+    if (c.volume_ml.size() >= 5) {
+      detection::CurveColumns cols;
+      cols.volume_ml = c.volume_ml;
+      cols.signal = c.signal;
+      cols.sample_volume_ml = sample_volume_ml_;
+      auto curve = detection::Curve::from_columns(std::move(cols));
+      if (curve) {
+        const auto ev = detection::find_endpoints_by_derivative(*curve);
+        if (!ev.endpoints.empty()) {
+          const auto& ep = ev.endpoints.back();
+          int past = 0;
+          for (double x : c.volume_ml)
+            past += x > ep.volume_ml ? 1 : 0;
+          if (past >= plan_.points_past_endpoint &&
+              ep.uncertainty_ml <= plan_.required_uncertainty_ml &&
+              !detection::has_flag(ep.flags, detection::QualityFlag::few_points_after_endpoint)) {
+            return {0.0, true,
+                    "endpoint at " + std::to_string(ep.volume_ml) + " mL known to " +
+                        std::to_string(ep.uncertainty_ml) + " mL with " + std::to_string(past) +
+                        " points past it",
+                    ep.volume_ml};
+          }
+          // Past the break: a few small steps, then larger ones away from it.
+          const double beyond = v - ep.volume_ml;
+          const double step = beyond < plan_.endpoint_zone_ml ? plan_.smallest_step_ml
+                                                              : plan_.smallest_step_ml * 3.0;
+          return {std::min(step, plan_.largest_step_ml), false, {}, 0.0};
+        }
+      }
+    }
+    // Before the break: predict where it will be from the shape so far.
+    const double predicted = predict_equivalence_ml(c.volume_ml, c.signal, sample_volume_ml_, v);
+    if (std::isfinite(predicted))
+      predicted_ml_ = predicted;
+    double step;
+    if (predicted_ml_ > 0.0) {
+      const double zone_start = predicted_ml_ - plan_.endpoint_zone_ml;
+      step = zone_start - v > plan_.smallest_step_ml
+                 ? std::min(zone_start - v, plan_.largest_step_ml)
+                 : plan_.smallest_step_ml;
+      // Never leap more than half the way to the predicted endpoint while the
+      // prediction still rests on few points.
+      if (c.volume_ml.size() < 8)
+        step = std::min(step, 0.5 * (predicted_ml_ - v));
+    } else {
+      // No prediction yet: modest steps, growing while the signal is flat.
+      const double slope = last_slope(c);
+      step = slope > 0.0 ? plan_.target_signal_step / slope : plan_.largest_step_ml / 2.0;
+      const double previous = last_step_ml(c);
+      if (previous > 0.0)
+        step = std::min(step, previous * plan_.largest_growth);
+      if (c.volume_ml.size() < 2)
+        step = plan_.smallest_step_ml * 5.0;
+    }
+    step = std::clamp(step, plan_.smallest_step_ml, plan_.largest_step_ml);
+    return {step, false, {}, 0.0};
+  }
+
+ private:
+  DosingPlan plan_;
+  double sample_volume_ml_;
+  double predicted_ml_ = 0.0;
+};
+
+}  // namespace
+
+const char* dosing_kind_name(DosingKind kind) {
+  switch (kind) {
+    case DosingKind::fixed_increments:
+      return "fixed increments";
+    case DosingKind::adaptive_increments:
+      return "adaptive increments";
+    case DosingKind::approach_preset_signal:
+      return "approach preset signal";
+    case DosingKind::model_guided:
+      return "model guided";
+  }
+  return "unknown";
+}
+
+json to_json(const DosingPlan& p) {
+  return {{"kind", dosing_kind_name(p.kind)},
+          {"increment_ml", p.increment_ml},
+          {"smallest_step_ml", p.smallest_step_ml},
+          {"largest_step_ml", p.largest_step_ml},
+          {"target_signal_step", p.target_signal_step},
+          {"largest_growth", p.largest_growth},
+          {"preset_signal", p.preset_signal},
+          {"preset_tolerance", p.preset_tolerance},
+          {"hold_s", p.hold_s},
+          {"required_uncertainty_ml", p.required_uncertainty_ml},
+          {"points_past_endpoint", p.points_past_endpoint},
+          {"endpoint_zone_ml", p.endpoint_zone_ml}};
+}
+
+Result<DosingPlan> dosing_plan_from_json(const json& j) {
+  if (!j.is_object())
+    return make_error(ErrorKind::invalid_input, "dosing: must be an object");
+  DosingPlan p;
+  for (auto it = j.begin(); it != j.end(); ++it) {
+    const std::string& key = it.key();
+    const std::string where = "dosing." + key;
+    if (key == "kind") {
+      if (!it->is_string())
+        return make_error(ErrorKind::invalid_input, where + " must be text");
+      const auto name = it->get<std::string>();
+      bool found = false;
+      for (auto k : {DosingKind::fixed_increments, DosingKind::adaptive_increments,
+                     DosingKind::approach_preset_signal, DosingKind::model_guided}) {
+        if (name == dosing_kind_name(k)) {
+          p.kind = k;
+          found = true;
+        }
+      }
+      if (!found) {
+        return make_error(ErrorKind::invalid_input,
+                          where + ": unknown strategy '" + name +
+                              "' (fixed increments, adaptive increments, approach preset "
+                              "signal, model guided)");
+      }
+      continue;
+    }
+    if (!it->is_number())
+      return make_error(ErrorKind::invalid_input, where + " must be a number");
+    const double v = it->get<double>();
+    double* target = nullptr;
+    bool positive = true;
+    if (key == "increment_ml")
+      target = &p.increment_ml;
+    if (key == "smallest_step_ml")
+      target = &p.smallest_step_ml;
+    if (key == "largest_step_ml")
+      target = &p.largest_step_ml;
+    if (key == "target_signal_step")
+      target = &p.target_signal_step;
+    if (key == "largest_growth")
+      target = &p.largest_growth;
+    if (key == "preset_signal") {
+      target = &p.preset_signal;
+      positive = false;
+    }
+    if (key == "preset_tolerance")
+      target = &p.preset_tolerance;
+    if (key == "hold_s")
+      target = &p.hold_s;
+    if (key == "required_uncertainty_ml")
+      target = &p.required_uncertainty_ml;
+    if (key == "endpoint_zone_ml")
+      target = &p.endpoint_zone_ml;
+    if (key == "points_past_endpoint") {
+      if (v < 1 || v > 100)
+        return make_error(ErrorKind::invalid_input, where + " must be 1..100");
+      p.points_past_endpoint = static_cast<int>(v);
+      continue;
+    }
+    if (!target)
+      return make_error(ErrorKind::invalid_input, where + ": unknown setting");
+    if (!std::isfinite(v) || (positive && !(v > 0.0))) {
+      return make_error(ErrorKind::invalid_input,
+                        where + " must be a finite number" + (positive ? " > 0" : ""));
+    }
+    *target = v;
+  }
+  if (p.smallest_step_ml > p.largest_step_ml) {
+    return make_error(ErrorKind::invalid_input,
+                      "dosing.smallest_step_ml is larger than dosing.largest_step_ml");
+  }
+  return p;
+}
+
+std::unique_ptr<DosingStrategy> make_dosing_strategy(const DosingPlan& plan,
+                                                     double sample_volume_ml) {
+  switch (plan.kind) {
+    case DosingKind::fixed_increments:
+      return std::make_unique<FixedIncrements>(plan);
+    case DosingKind::adaptive_increments:
+      return std::make_unique<AdaptiveIncrements>(plan);
+    case DosingKind::approach_preset_signal:
+      return std::make_unique<ApproachPresetSignal>(plan);
+    case DosingKind::model_guided:
+      return std::make_unique<ModelGuided>(plan, sample_volume_ml);
+  }
+  return std::make_unique<FixedIncrements>(plan);
+}
+
+}  // namespace veq::controller

@@ -1,0 +1,96 @@
+// Dosing strategies: how much titrant to add next, from the curve so far.
+// Names are our own plain words (docs/dosing.md explains each).
+#pragma once
+
+#include <memory>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "common/result.hpp"
+
+namespace veq::controller {
+
+/// Which strategy (stored in method settings: append-only values).
+enum class DosingKind : int {
+  fixed_increments = 1,        ///< the same volume every step
+  adaptive_increments = 2,     ///< steps sized to keep the signal change per step near a target
+  approach_preset_signal = 3,  ///< shrinking steps towards a preset signal, then hold it
+  model_guided = 4,  ///< fit the predicted curve while titrating, crowd points at the endpoint
+};
+const char* dosing_kind_name(DosingKind kind);
+
+/// Settings of every strategy; each uses its own part.
+struct DosingPlan {
+  DosingKind kind = DosingKind::fixed_increments;
+
+  /// fixed_increments: volume of every dose (mL).
+  double increment_ml = 0.05;
+
+  /// adaptive_increments and model_guided: smallest and largest step (mL).
+  /// 0.01 mL is two or three motor steps short of what a 10-20 mL burette
+  /// delivers reproducibly; 0.5 mL keeps a flat start quick.
+  double smallest_step_ml = 0.01;
+  double largest_step_ml = 0.5;
+  /// adaptive_increments: wanted signal change per step (signal units, mV).
+  /// 4 mV puts ten to twenty points on a break of 100-200 mV.
+  double target_signal_step = 4.0;
+  /// adaptive_increments: a step may grow by at most this factor over the last
+  /// one, so that a flat stretch just before a break is not leapt over.
+  double largest_growth = 2.0;
+
+  /// approach_preset_signal: the signal to reach (mV), how close counts as
+  /// reached, and how long it must stay there (s).
+  double preset_signal = 0.0;
+  double preset_tolerance = 1.0;
+  double hold_s = 30.0;
+
+  /// model_guided: stop once the fitted endpoint's standard uncertainty is
+  /// below this (mL) and `points_past_endpoint` points lie past it.
+  double required_uncertainty_ml = 0.005;
+  int points_past_endpoint = 6;
+  /// model_guided: points at the smallest step within this distance of the
+  /// predicted endpoint (mL).
+  double endpoint_zone_ml = 0.15;
+};
+
+nlohmann::json to_json(const DosingPlan& plan);
+/// Reads a plan; unknown names and out-of-range values are errors naming the field.
+Result<DosingPlan> dosing_plan_from_json(const nlohmann::json& json);
+
+/// The curve measured so far, as a strategy sees it.
+struct CurveSoFar {
+  const std::vector<double>& volume_ml;
+  const std::vector<double>& signal;
+  double max_volume_ml;  ///< the method's maximum burette reading
+};
+
+/// What to do next.
+struct DoseDecision {
+  double volume_ml = 0.0;  ///< volume of the next dose, mL (> 0 unless finished)
+  bool finished = false;   ///< the strategy has what it needs: stop titrating
+  std::string reason;      ///< why it finished
+  /// approach_preset_signal: the volume at which the preset signal was held.
+  double endpoint_ml = 0.0;
+  /// With volume_ml == 0 and not finished: wait this long (s), then read again.
+  double wait_s = 0.0;
+};
+
+/// A dosing strategy keeps what it learns between steps.
+class DosingStrategy {
+ public:
+  virtual ~DosingStrategy() = default;
+  /// The next dose after the points so far (at least one point).
+  virtual DoseDecision next(const CurveSoFar& curve) = 0;
+  /// True if the strategy ends the titration by itself (approach_preset_signal
+  /// and model_guided); the others stop past the endpoint found by detection.
+  virtual bool decides_its_own_end() const { return false; }
+};
+
+/// The strategy of a plan. model_guided needs the sample volume before
+/// titrant (mL) for the dilution in its predicted curve shape.
+std::unique_ptr<DosingStrategy> make_dosing_strategy(const DosingPlan& plan,
+                                                     double sample_volume_ml);
+
+}  // namespace veq::controller
