@@ -123,6 +123,10 @@ Result<std::unique_ptr<Transport>> open_serial_transport(const SerialSettings& s
                                            "write access to the port (on Debian: the "
                                            "dialout group)");
     }
+    if (ec == boost::system::errc::inappropriate_io_control_operation) {
+      return make_error(ErrorKind::invalid_input,
+                        where + " is not a serial port (not a terminal device); check the path");
+    }
     return make_error(ErrorKind::io, where + ": cannot open (" + ec.message() + ")");
   }
   // Each setting separately, so that the message names the one the port refused.

@@ -201,5 +201,15 @@ TEST(SerialTransportOpen, MissingPortIsNotFoundAndNamed) {
   EXPECT_NE(port.error().message.find("serial:/dev/veq-no-such-port"), std::string::npos);
 }
 
+TEST(SerialTransportOpen, AFileThatIsNoTerminalIsRefused) {
+  SerialSettings s;
+  s.device = VEQ_SOURCE_DIR "/drivers/CMakeLists.txt";
+  auto port = open_serial_transport(s);
+  ASSERT_FALSE(port.has_value());
+  EXPECT_EQ(port.error().kind, ErrorKind::invalid_input);
+  EXPECT_NE(port.error().message.find("is not a serial port"), std::string::npos)
+      << port.error().message;
+}
+
 }  // namespace
 }  // namespace veq::drivers
