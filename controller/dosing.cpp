@@ -90,12 +90,21 @@ class ApproachPresetSignal final : public DosingStrategy {
       return d;
     }
     holding_ = false;
-    if (c.volume_ml.size() >= 2 && direction_ == 0.0) {
-      direction_ = (c.signal.back() - c.signal.front()) >= 0 ? 1.0 : -1.0;
-    }
-    // Past the preset signal (the signal moved beyond it): nothing more to add.
-    if (direction_ != 0.0 && distance * direction_ < 0.0) {
-      return {0.0, true, "signal went past the preset value", v};
+    // Always towards the preset value from where the titration started.
+    if (direction_ == 0.0)
+      direction_ = plan_.preset_signal >= c.signal.front() ? 1.0 : -1.0;
+    if (distance * direction_ < 0.0) {
+      // The last dose carried the signal past the preset value: the endpoint
+      // is where the straight line between the last two points crosses it.
+      const auto n = c.volume_ml.size();
+      double at = v;
+      if (n >= 2 && c.signal[n - 1] != c.signal[n - 2]) {
+        const double f =
+            (plan_.preset_signal - c.signal[n - 2]) / (c.signal[n - 1] - c.signal[n - 2]);
+        at = c.volume_ml[n - 2] +
+             std::clamp(f, 0.0, 1.0) * (c.volume_ml[n - 1] - c.volume_ml[n - 2]);
+      }
+      return {0.0, true, "signal went past the preset value; crossing interpolated", at};
     }
     double step = plan_.largest_step_ml;
     const double slope = last_slope(c);

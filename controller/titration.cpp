@@ -372,7 +372,10 @@ class Titration {
         ++first;
       const std::vector<double> wt(times.begin() + static_cast<long>(first), times.end());
       const std::vector<double> wv(values.begin() + static_cast<long>(first), values.end());
-      const bool enough = wt.size() >= 3 && wt.back() - wt.front() >= 2.0;
+      // The drift is judged over the whole window: over a shorter span the
+      // noise alone makes the slope look small or large by chance.
+      const bool enough =
+          wt.size() >= 3 && wt.back() - wt.front() >= rule.window_s - 0.5 * rule.read_interval_s;
       drift = enough ? least_squares_slope_per_min(wt, wv) : 0.0;
       if (t >= rule.min_wait_s && enough && std::abs(drift) <= rule.drift_limit_per_min)
         break;

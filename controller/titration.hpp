@@ -24,8 +24,9 @@ namespace veq::controller {
 
 /// When a reading counts as settled.
 struct SettlingRule {
-  /// Readings used for the drift, the last window_s seconds (s). 10 s spans
-  /// ten readings: enough to average 0.1 mV noise to about 0.6 mV/min.
+  /// Readings used for the drift, the last window_s seconds (s); a reading is
+  /// judged only once this much time has passed since the dose. 10 s spans
+  /// eleven readings: 0.1 mV noise then shakes the slope by about 0.6 mV/min.
   double window_s = 10.0;
   /// Largest accepted drift, |least-squares slope| (mV/min). 1 mV/min is the
   /// order used for ion-selective electrodes in titrations (common practice).

@@ -20,8 +20,9 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
       // Separate, fixed streams per device so that one device's draws never
       // shift another's: the same scenario and seed give the same curve.
       burette_(scenario.burette, clock, scenario.seed * 2654435761u + 1),
-      electrode_(scenario.electrode, scenario_chemistry(scenario), scenario.sample.charge, clock,
-                 scenario.seed * 2654435761u + 2, [this] { return burette_.true_delivered_ml(); }),
+      electrode_(scenario.electrode, scenario_chemistry(scenario), scenario.sample.charge,
+                 scenario.sample.reaction_time_s, clock, scenario.seed * 2654435761u + 2,
+                 [this] { return burette_.true_delivered_ml(); }),
       burette_line_("burette", burette_, clock),
       electrode_line_("electrode", electrode_, clock) {
   burette_.share_lock(&vessel_lock_);

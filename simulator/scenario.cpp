@@ -143,6 +143,7 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "sample", "log10_formation_constant", s.sample.log10_formation_constant, true, 0.0,
              40.0);
     r.number(*j, "sample", "alpha_metal", s.sample.alpha_metal, false, 1e-30, 1.0);
+    r.number(*j, "sample", "reaction_time_s", s.sample.reaction_time_s, false, 0.0, 3600.0);
   }
   if (const json* j = r.section(doc, "titrant", true)) {
     r.text(*j, "titrant", "name", s.titrant.name);
@@ -188,6 +189,8 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "electrode", "temperature_c", s.electrode.temperature_c, false, -5.0, 100.0);
     r.number(*j, "electrode", "noise_mv", s.electrode.noise_mv, false, 0.0, 100.0);
     r.number(*j, "electrode", "response_time_s", s.electrode.response_time_s, false, 0.0, 600.0);
+    r.number(*j, "electrode", "drift_mv_per_min", s.electrode.drift_mv_per_min, false, -100.0,
+             100.0);
     r.fault(*j, "electrode", s.electrode_fault);
   }
   if (!r.error.empty())

@@ -20,6 +20,10 @@ struct SampleSpec {
   double ph = 10.0;                       ///< buffered pH of the vessel
   double log10_formation_constant = 0.0;  ///< log Kf of the metal-titrant complex
   double alpha_metal = 1.0;               ///< fraction of metal free of auxiliary ligands
+  /// Time constant of the complexation itself (s): 0 for metals that react at
+  /// once (calcium, zinc); tens of seconds for slow ones (nickel, aluminium),
+  /// whose free metal approaches equilibrium only gradually after each dose.
+  double reaction_time_s = 0.0;
 };
 
 struct TitrantSpec {
@@ -46,8 +50,9 @@ struct ElectrodeSpec {
   double e0_mv = 150.0;          ///< standard potential of the cell, mV
   double slope_percent = 100.0;  ///< slope as % of the Nernstian value
   double temperature_c = 25.0;
-  double noise_mv = 0.1;         ///< standard deviation of Gaussian noise, mV
-  double response_time_s = 2.0;  ///< first-order time constant of the response, s
+  double noise_mv = 0.1;          ///< standard deviation of Gaussian noise, mV
+  double response_time_s = 2.0;   ///< first-order time constant of the response, s
+  double drift_mv_per_min = 0.0;  ///< steady drift of the reference electrode, mV/min
 };
 
 /// Faults a virtual device can be told to show (append-only names).

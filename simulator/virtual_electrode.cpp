@@ -16,12 +16,13 @@ double nernst_slope_mv(double temperature_c) {
 
 VirtualElectrode::VirtualElectrode(const ElectrodeSpec& spec,
                                    const chemistry::OneToOneTitration& chemistry, int metal_charge,
-                                   drivers::Clock& clock, std::uint64_t seed,
-                                   std::function<double()> titrant_in_vessel_ml)
+                                   double reaction_time_s, drivers::Clock& clock,
+                                   std::uint64_t seed, std::function<double()> titrant_in_vessel_ml)
     : VirtualDevice(clock, seed),
       spec_(spec),
       chemistry_(chemistry),
       charge_(metal_charge),
+      reaction_time_s_(reaction_time_s),
       titrant_in_vessel_ml_(std::move(titrant_in_vessel_ml)) {}
 
 double VirtualElectrode::equilibrium_potential_mv(double titrant_ml) const {
@@ -31,12 +32,20 @@ double VirtualElectrode::equilibrium_potential_mv(double titrant_ml) const {
 }
 
 double VirtualElectrode::lagged_potential_mv() {
-  const double target = equilibrium_potential_mv(titrant_in_vessel_ml_());
   const auto now = clock_.now();
+  const double dt = started_ ? drivers::to_seconds(now - last_time_) : 0.0;
+  // A slow complexation: the titrant that has reacted approaches the titrant
+  // delivered with its own time constant (first order in what is left).
+  const double delivered = titrant_in_vessel_ml_();
+  if (!started_ || reaction_time_s_ <= 0.0) {
+    reacted_ml_ = delivered;
+  } else {
+    reacted_ml_ = delivered + (reacted_ml_ - delivered) * std::exp(-dt / reaction_time_s_);
+  }
+  const double target = equilibrium_potential_mv(reacted_ml_);
   if (!started_ || spec_.response_time_s <= 0.0) {
     value_mv_ = target;
   } else {
-    const double dt = drivers::to_seconds(now - last_time_);
     value_mv_ = target + (value_mv_ - target) * std::exp(-dt / spec_.response_time_s);
   }
   started_ = true;
@@ -55,7 +64,8 @@ protocol::Message VirtualElectrode::handle(const protocol::Message& request) {
     return m;
   }
   if (request.word == "read") {
-    double e = lagged_potential_mv();
+    // The reference drifts steadily with the device's time.
+    double e = lagged_potential_mv() + spec_.drift_mv_per_min * clock_.now_s() / 60.0;
     if (spec_.noise_mv > 0.0) {
       std::normal_distribution<double> noise(0.0, spec_.noise_mv);
       e += noise(random_);

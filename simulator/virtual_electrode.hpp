@@ -18,9 +18,10 @@ class VirtualElectrode final : public VirtualDevice {
  public:
   /// titrant_in_vessel_ml tells how much titrant has truly entered the vessel
   /// at the clock's present time (the burette's hidden truth).
+  /// reaction_time_s: time constant of a slow complexation (0: instant).
   VirtualElectrode(const ElectrodeSpec& spec, const chemistry::OneToOneTitration& chemistry,
-                   int metal_charge, drivers::Clock& clock, std::uint64_t seed,
-                   std::function<double()> titrant_in_vessel_ml);
+                   int metal_charge, double reaction_time_s, drivers::Clock& clock,
+                   std::uint64_t seed, std::function<double()> titrant_in_vessel_ml);
 
   /// Noise-free equilibrium potential at a titrant volume in the vessel (mV).
   double equilibrium_potential_mv(double titrant_ml) const;
@@ -34,7 +35,9 @@ class VirtualElectrode final : public VirtualDevice {
   ElectrodeSpec spec_;
   chemistry::OneToOneTitration chemistry_;
   int charge_;
+  double reaction_time_s_;
   std::function<double()> titrant_in_vessel_ml_;
+  double reacted_ml_ = 0.0;  ///< titrant that has reacted so far (slow metals), mL
   bool started_ = false;
   double value_mv_ = 0.0;
   drivers::Duration last_time_{0};
