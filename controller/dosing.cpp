@@ -19,6 +19,8 @@ double last_step_ml(const CurveSoFar& c) {
 }
 
 /// |dSignal/dV| over the last step, or 0 with fewer than two distinct volumes.
+/// (A slope over two steps was tried: it smooths the noise of weak breaks but
+/// lets the first step into a sharp break grow too large.)
 double last_slope(const CurveSoFar& c) {
   const auto n = c.volume_ml.size();
   if (n < 2)
@@ -238,11 +240,9 @@ class ModelGuided final : public DosingStrategy {
                         " points past it",
                     ep.volume_ml};
           }
-          // Past the break: a few small steps, then larger ones away from it.
-          const double beyond = v - ep.volume_ml;
-          const double step = beyond < plan_.endpoint_zone_ml ? plan_.smallest_step_ml
-                                                              : plan_.smallest_step_ml * 3.0;
-          return {std::min(step, plan_.largest_step_ml), false, {}, 0.0};
+          // Past the break: steps sized to the signal change, as the adaptive
+          // strategy does, so a broad weak break is still sampled evenly.
+          return {adaptive_step(c), false, {}, 0.0};
         }
       }
     }
@@ -253,9 +253,11 @@ class ModelGuided final : public DosingStrategy {
     double step;
     if (predicted_ml_ > 0.0) {
       const double zone_start = predicted_ml_ - plan_.endpoint_zone_ml;
+      // Up to the zone in one or two large steps; inside it, steps sized to the
+      // signal change.
       step = zone_start - v > plan_.smallest_step_ml
                  ? std::min(zone_start - v, plan_.largest_step_ml)
-                 : plan_.smallest_step_ml;
+                 : std::min(adaptive_step(c), 2.0 * plan_.endpoint_zone_ml);
       // Never leap more than half the way to the predicted endpoint while the
       // prediction still rests on few points.
       if (c.volume_ml.size() < 8)
@@ -275,6 +277,15 @@ class ModelGuided final : public DosingStrategy {
   }
 
  private:
+  double adaptive_step(const CurveSoFar& c) const {
+    const double slope = last_slope(c);
+    double step = slope > 0.0 ? plan_.target_signal_step / slope : plan_.largest_step_ml;
+    const double previous = last_step_ml(c);
+    if (previous > 0.0)
+      step = std::min(step, previous * plan_.largest_growth);
+    return std::clamp(step, plan_.smallest_step_ml, plan_.largest_step_ml);
+  }
+
   DosingPlan plan_;
   double sample_volume_ml_;
   double predicted_ml_ = 0.0;
