@@ -32,6 +32,18 @@ const char* quality_flag_name(QualityFlag flag) noexcept {
       return "signal_out_of_range";
     case QualityFlag::dilution_not_corrected:
       return "dilution_not_corrected";
+    case QualityFlag::sides_disagree:
+      return "sides_disagree";
+    case QualityFlag::metal_fraction_not_corrected:
+      return "metal_fraction_not_corrected";
+    case QualityFlag::poor_fit:
+      return "poor_fit";
+    case QualityFlag::fit_not_converged:
+      return "fit_not_converged";
+    case QualityFlag::parameter_at_limit:
+      return "parameter_at_limit";
+    case QualityFlag::unusual_slope:
+      return "unusual_slope";
   }
   return "unknown";
 }
@@ -73,7 +85,8 @@ nlohmann::json to_json(const Evaluation& evaluation) {
           {"options", evaluation.options},
           {"endpoints", std::move(endpoints)},
           {"flags", flag_names(evaluation.flags)},
-          {"diagnostics", {{"series", std::move(series)}, {"markers", std::move(markers)}}}};
+          {"diagnostics", {{"series", std::move(series)}, {"markers", std::move(markers)}}},
+          {"details", evaluation.details}};
 }
 
 }  // namespace veq::detection

@@ -52,6 +52,28 @@ enum class QualityFlag : int {
   /// The segments method could not correct for dilution because the curve's
   /// sample volume is unknown (whole-curve flag).
   dilution_not_corrected = 13,
+  /// The Gran lines before and after the equivalence point cross zero at
+  /// volumes that differ by more than three times their combined standard
+  /// uncertainty (Gran method); the endpoint is their weighted mean and its
+  /// uncertainty is widened by the Birge ratio.
+  sides_disagree = 14,
+  /// The sample holds an auxiliary ligand that binds the metal, but the Gran
+  /// function before the equivalence point was not corrected for the metal
+  /// fraction (no sample given, or the correction switched off): expect a
+  /// bias of up to tens of percent.
+  metal_fraction_not_corrected = 15,
+  /// The fitted model leaves residuals well beyond the noise of the curve or
+  /// with a systematic pattern (model fit): the chemistry or the electrode
+  /// does not behave as described.
+  poor_fit = 16,
+  /// The model fit stopped before converging (iteration limit).
+  fit_not_converged = 17,
+  /// A fitted parameter ran into the limit of its allowed range (model fit,
+  /// fitted electrode slope): the value reported is that limit.
+  parameter_at_limit = 18,
+  /// The electrode slope fitted from the curve lies outside 80-105 % of the
+  /// Nernst slope: check the electrode (or give a calibrated slope).
+  unusual_slope = 19,
 };
 
 /// A short, stable name ("few_points_after_endpoint", ...).
@@ -102,11 +124,16 @@ struct Diagnostics {
 
 /// The result of evaluating one curve with one method.
 struct Evaluation {
-  std::string method;               ///< "derivative", "segments", "crossing"
+  std::string method;               ///< "derivative", "segments", "crossing", "gran", "model"
   nlohmann::json options;           ///< the options used, every field spelt out
   std::vector<Endpoint> endpoints;  ///< in order of increasing volume
   std::vector<QualityFlag> flags;   ///< whole-curve flags
   Diagnostics diagnostics;
+  /// Values a method determines besides its endpoints, as a JSON object (the
+  /// Gran method's linear ranges and electrode slope, the model fit's
+  /// parameters with their standard uncertainties and its residual
+  /// statistics); empty for methods that have none.
+  nlohmann::json details = nlohmann::json::object();
 };
 
 /// True if `flags` holds `flag`.
@@ -114,7 +141,8 @@ bool has_flag(const std::vector<QualityFlag>& flags, QualityFlag flag) noexcept;
 
 /// The evaluation as JSON: {"method", "options", "endpoints": [{"volume_ml",
 /// "uncertainty_ml", "signal", "steepness", "method", "flags": [names]}],
-/// "flags": [names], "diagnostics": {"series": [...], "markers": [...]}}.
+/// "flags": [names], "diagnostics": {"series": [...], "markers": [...]},
+/// "details": {...}}.
 nlohmann::json to_json(const Evaluation& evaluation);
 
 }  // namespace veq::detection

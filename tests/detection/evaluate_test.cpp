@@ -16,10 +16,11 @@ Curve ramp() {
 }
 
 TEST(Evaluate, KnowsItsMethods) {
-  ASSERT_EQ(method_names().size(), 3u);
+  ASSERT_EQ(method_names().size(), 4u);
   EXPECT_EQ(method_names()[0], "derivative");
   EXPECT_EQ(method_names()[1], "segments");
   EXPECT_EQ(method_names()[2], "crossing");
+  EXPECT_EQ(method_names()[3], "gran");
 }
 
 TEST(Evaluate, DispatchesByName) {
@@ -43,7 +44,7 @@ TEST(Evaluate, ErrorsNameTheProblem) {
   ASSERT_FALSE(method);
   EXPECT_EQ(method.error().kind, ErrorKind::invalid_input);
   EXPECT_NE(method.error().message.find("'steepest'"), std::string::npos);
-  EXPECT_NE(method.error().message.find("derivative, segments, crossing"), std::string::npos);
+  EXPECT_NE(method.error().message.find("derivative, segments, crossing, gran"), std::string::npos);
   auto option = evaluate(ramp(), "derivative", {{"window", 5}});
   ASSERT_FALSE(option);
   EXPECT_NE(option.error().message.find("'window'"), std::string::npos);
@@ -82,8 +83,17 @@ TEST(QualityFlags, StoredValuesAndNamesAreFixed) {
   EXPECT_EQ(static_cast<int>(QualityFlag::weak_angle), 11);
   EXPECT_EQ(static_cast<int>(QualityFlag::signal_out_of_range), 12);
   EXPECT_EQ(static_cast<int>(QualityFlag::dilution_not_corrected), 13);
+  EXPECT_EQ(static_cast<int>(QualityFlag::sides_disagree), 14);
+  EXPECT_EQ(static_cast<int>(QualityFlag::metal_fraction_not_corrected), 15);
+  EXPECT_EQ(static_cast<int>(QualityFlag::poor_fit), 16);
+  EXPECT_EQ(static_cast<int>(QualityFlag::fit_not_converged), 17);
+  EXPECT_EQ(static_cast<int>(QualityFlag::parameter_at_limit), 18);
+  EXPECT_EQ(static_cast<int>(QualityFlag::unusual_slope), 19);
   EXPECT_STREQ(quality_flag_name(QualityFlag::break_incomplete), "break_incomplete");
   EXPECT_STREQ(quality_flag_name(QualityFlag::dilution_not_corrected), "dilution_not_corrected");
+  EXPECT_STREQ(quality_flag_name(QualityFlag::metal_fraction_not_corrected),
+               "metal_fraction_not_corrected");
+  EXPECT_STREQ(quality_flag_name(QualityFlag::unusual_slope), "unusual_slope");
 }
 
 }  // namespace
