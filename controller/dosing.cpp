@@ -211,8 +211,9 @@ double predict_equivalence_ml(const std::vector<double>& v, const std::vector<do
 /// known to the required uncertainty with enough points past it.
 class ModelGuided final : public DosingStrategy {
  public:
-  ModelGuided(const DosingPlan& p, double sample_volume_ml)
-      : plan_(p), sample_volume_ml_(sample_volume_ml) {}
+  ModelGuided(const DosingPlan& p, double sample_volume_ml,
+              const detection::DerivativeOptions& detection)
+      : plan_(p), sample_volume_ml_(sample_volume_ml), detection_(detection) {}
   bool decides_its_own_end() const override { return true; }
 
   DoseDecision next(const CurveSoFar& c) override {
@@ -225,13 +226,14 @@ class ModelGuided final : public DosingStrategy {
       cols.sample_volume_ml = sample_volume_ml_;
       auto curve = detection::Curve::from_columns(std::move(cols));
       if (curve) {
-        const auto ev = detection::find_endpoints_by_derivative(*curve);
+        const auto ev = detection::find_endpoints_by_derivative(*curve, detection_);
         if (!ev.endpoints.empty()) {
           const auto& ep = ev.endpoints.back();
           int past = 0;
           for (double x : c.volume_ml)
             past += x > ep.volume_ml ? 1 : 0;
-          if (past >= plan_.points_past_endpoint &&
+          // The final evaluation's local fits need a window of points past it too.
+          if (past >= std::max(plan_.points_past_endpoint, detection_.window_points) &&
               ep.uncertainty_ml <= plan_.required_uncertainty_ml &&
               !detection::has_flag(ep.flags, detection::QualityFlag::few_points_after_endpoint)) {
             return {0.0, true,
@@ -288,6 +290,7 @@ class ModelGuided final : public DosingStrategy {
 
   DosingPlan plan_;
   double sample_volume_ml_;
+  detection::DerivativeOptions detection_;
   double predicted_ml_ = 0.0;
 };
 
@@ -397,8 +400,9 @@ Result<DosingPlan> dosing_plan_from_json(const json& j) {
   return p;
 }
 
-std::unique_ptr<DosingStrategy> make_dosing_strategy(const DosingPlan& plan,
-                                                     double sample_volume_ml) {
+std::unique_ptr<DosingStrategy> make_dosing_strategy(
+    const DosingPlan& plan, double sample_volume_ml,
+    const detection::DerivativeOptions& detection) {
   switch (plan.kind) {
     case DosingKind::fixed_increments:
       return std::make_unique<FixedIncrements>(plan);
@@ -407,7 +411,7 @@ std::unique_ptr<DosingStrategy> make_dosing_strategy(const DosingPlan& plan,
     case DosingKind::approach_preset_signal:
       return std::make_unique<ApproachPresetSignal>(plan);
     case DosingKind::model_guided:
-      return std::make_unique<ModelGuided>(plan, sample_volume_ml);
+      return std::make_unique<ModelGuided>(plan, sample_volume_ml, detection);
   }
   return std::make_unique<FixedIncrements>(plan);
 }

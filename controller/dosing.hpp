@@ -9,6 +9,7 @@
 #include <nlohmann/json.hpp>
 
 #include "common/result.hpp"
+#include "detection/derivative.hpp"
 
 namespace veq::controller {
 
@@ -89,8 +90,10 @@ class DosingStrategy {
 };
 
 /// The strategy of a plan. model_guided needs the sample volume before
-/// titrant (mL) for the dilution in its predicted curve shape.
-std::unique_ptr<DosingStrategy> make_dosing_strategy(const DosingPlan& plan,
-                                                     double sample_volume_ml);
+/// titrant (mL) for the dilution in its predicted curve shape, and judges the
+/// endpoint with the same derivative options as the run's final evaluation.
+std::unique_ptr<DosingStrategy> make_dosing_strategy(
+    const DosingPlan& plan, double sample_volume_ml,
+    const detection::DerivativeOptions& detection = {});
 
 }  // namespace veq::controller

@@ -40,7 +40,7 @@ class Titration {
         method_(method),
         observer_(observer),
         control_(control),
-        strategy_(make_dosing_strategy(method.dosing, sample.sample_volume_ml)) {}
+        strategy_(make_dosing_strategy(method.dosing, sample.sample_volume_ml, method.detection)) {}
 
   RunOutcome run() {
     store::NewRun record;

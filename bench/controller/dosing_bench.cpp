@@ -58,6 +58,7 @@ controller::TitrationMethod method_for(controller::DosingKind dosing, Kind kind,
   if (kind == Kind::weak) {
     m.detection.min_break_height = 20.0;
     m.dosing.target_signal_step = 2.0;
+    m.detection.window_points = 9;
   }
   if (dosing == controller::DosingKind::approach_preset_signal) {
     // The equivalence potential of this kind of sample, as a previous titration
@@ -131,6 +132,10 @@ int main(int argc, char** argv) {
         ++titrations;
         if (outcome.status != store::RunStatus::completed || !outcome.endpoint) {
           ++cell.failures;
+          if (std::getenv("VEQ_BENCH_VERBOSE")) {
+            std::fprintf(stderr, "%s, %s, seed %d: %s\n", kind_name(kind),
+                         controller::dosing_kind_name(dosing), seed, outcome.reason.c_str());
+          }
           continue;
         }
         const double truth = bench.true_equivalence_reading_ml();
