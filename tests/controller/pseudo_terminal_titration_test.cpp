@@ -79,6 +79,9 @@ TEST(TitrationOverPseudoTerminals, FindsTheEquivalenceWithinTwoTenthsOfAPercent)
   EXPECT_EQ(bench.store->load_points(outcome.run_id)->size(), outcome.point_count);
 }
 
+// Faults begin 300 device seconds (3 real seconds) after the simulator starts:
+// late enough that a loaded machine has stored several points by then, early
+// enough that the titration (about 660 device seconds) is still running.
 void expect_safe_end(OverPty& bench, const RunOutcome& outcome, const char* says) {
   EXPECT_EQ(outcome.status, store::RunStatus::failed);
   EXPECT_NE(outcome.reason.find(says), std::string::npos) << outcome.reason;
@@ -90,21 +93,21 @@ void expect_safe_end(OverPty& bench, const RunOutcome& outcome, const char* says
 
 TEST(TitrationOverPseudoTerminals, GarbledReplyEndsTheRunSafely) {
   auto scenario = short_scenario();
-  scenario.electrode_fault = {simulator::FaultKind::garbage, 120.0};
+  scenario.electrode_fault = {simulator::FaultKind::garbage, 300.0};
   OverPty bench(scenario);
   expect_safe_end(bench, bench.run(), "garbled");
 }
 
 TEST(TitrationOverPseudoTerminals, PartialLineEndsTheRunSafely) {
   auto scenario = short_scenario();
-  scenario.electrode_fault = {simulator::FaultKind::partial_line, 120.0};
+  scenario.electrode_fault = {simulator::FaultKind::partial_line, 300.0};
   OverPty bench(scenario);
   expect_safe_end(bench, bench.run(), "timeout");
 }
 
 TEST(TitrationOverPseudoTerminals, SilentElectrodeEndsTheRunSafely) {
   auto scenario = short_scenario();
-  scenario.electrode_fault = {simulator::FaultKind::silence, 120.0};
+  scenario.electrode_fault = {simulator::FaultKind::silence, 300.0};
   OverPty bench(scenario);
   expect_safe_end(bench, bench.run(), "timeout");
 }
