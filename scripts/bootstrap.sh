@@ -18,7 +18,7 @@ packages=(
   libsqlite3-dev sqlite3
   libboost-dev libeigen3-dev nlohmann-json3-dev libcli11-dev
   qt6-base-dev qt6-charts-dev libqt6opengl6-dev libxkbcommon-dev
-  fonts-dejavu-core poppler-utils clang-format
+  fonts-dejavu-core poppler-utils clang-format ccache
   python3-numpy python3-scipy
 )
 
