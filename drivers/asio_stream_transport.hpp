@@ -23,6 +23,7 @@
 #include <boost/system/error_code.hpp>
 
 #include "common/result.hpp"
+#include "drivers/line_framing.hpp"
 #include "drivers/transport.hpp"
 
 namespace veq::drivers::detail {
@@ -168,12 +169,23 @@ class AsioStreamTransport final : public Transport {
       drop_pending_input_(stream_);
   }
 
+  Result<void> set_line_end(std::string_view terminator) override {
+    if (terminator.empty() || terminator.size() > kMaxTerminatorBytes) {
+      return make_error(ErrorKind::invalid_input, description_ + ": a line end must have 1 to " +
+                                                      std::to_string(kMaxTerminatorBytes) +
+                                                      " bytes");
+    }
+    line_end_ = std::string(terminator);
+    return {};
+  }
+  std::string line_end() const override { return line_end_; }
+
  private:
   /// The next complete line in the input, or an error if the input cannot be
   /// a line, or nothing if more bytes are needed.
   std::optional<Result<std::string>> take_line() {
-    const auto end = input_.find('\n');
-    if (end == std::string::npos) {
+    auto line = drivers::take_line(input_, line_end_);
+    if (!line) {
       if (input_.size() > kMaxLineBytes) {
         const auto size = input_.size();
         input_.clear();
@@ -184,17 +196,13 @@ class AsioStreamTransport final : public Transport {
       }
       return std::nullopt;
     }
-    std::string line = input_.substr(0, end);
-    input_.erase(0, end + 1);
-    if (!line.empty() && line.back() == '\r')
-      line.pop_back();
-    if (line.size() > kMaxLineBytes) {
+    if (line->size() > kMaxLineBytes) {
       return Result<std::string>(
           make_error(ErrorKind::garbled, description_ + " sent a line of " +
-                                             std::to_string(line.size()) + " bytes (at most " +
+                                             std::to_string(line->size()) + " bytes (at most " +
                                              std::to_string(kMaxLineBytes) + " are allowed)"));
     }
-    return Result<std::string>(std::move(line));
+    return Result<std::string>(std::move(*line));
   }
 
   /// Sockets have a non-blocking mode and send without SIGPIPE; a serial
@@ -237,6 +245,7 @@ class AsioStreamTransport final : public Transport {
   InputDropper drop_pending_input_;
   std::array<char, 512> chunk_{};
   std::string input_;
+  std::string line_end_{kNativeLineEnd};
 };
 
 }  // namespace veq::drivers::detail

@@ -1,5 +1,8 @@
 #include "drivers/connection.hpp"
 
+#include "drivers/reopening_transport.hpp"
+#include "drivers/traffic_log.hpp"
+
 #include <charconv>
 #include <set>
 #include <utility>
@@ -101,9 +104,13 @@ struct Parser {
           s.flow = FlowControl::hardware;
         else
           return fail("flow '" + std::string(value) + "' is not one of none, software, hardware");
+      } else if (name == "traffic_log") {
+        if (value.empty())
+          return fail("traffic_log needs a file path");
+        s.traffic_log = std::string(value);
       } else {
         return fail("unknown serial setting '" + std::string(name) +
-                    "' (known: baud, data_bits, parity, stop_bits, flow)");
+                    "' (known: baud, data_bits, parity, stop_bits, flow, traffic_log)");
       }
       return {};
     };
@@ -139,7 +146,14 @@ struct Parser {
         s.connect_timeout = std::chrono::milliseconds(*n);
         return {};
       }
-      return fail("unknown tcp setting '" + std::string(name) + "' (known: connect_timeout_ms)");
+      if (name == "traffic_log") {
+        if (value.empty())
+          return fail("traffic_log needs a file path");
+        s.traffic_log = std::string(value);
+        return {};
+      }
+      return fail("unknown tcp setting '" + std::string(name) +
+                  "' (known: connect_timeout_ms, traffic_log)");
     };
     if (auto r = each_setting(rest.substr(question + 1), set); !r)
       return r.error();
@@ -170,9 +184,33 @@ std::string to_connection_string(const ConnectionSettings& settings) {
 }
 
 Result<std::unique_ptr<Transport>> open_transport(const ConnectionSettings& settings) {
-  if (const auto* serial = std::get_if<SerialSettings>(&settings))
-    return open_serial_transport(*serial);
-  return open_tcp_transport(std::get<TcpSettings>(settings));
+  ReopeningTransport::Opener opener = [settings]() -> Result<std::unique_ptr<Transport>> {
+    if (const auto* serial = std::get_if<SerialSettings>(&settings))
+      return open_serial_transport(*serial);
+    return open_tcp_transport(std::get<TcpSettings>(settings));
+  };
+  const std::string& log_path =
+      std::visit([](const auto& s) -> const std::string& { return s.traffic_log; }, settings);
+  std::shared_ptr<TrafficLog> log;
+  if (!log_path.empty()) {
+    auto opened = TrafficLog::open_file(log_path);
+    if (!opened)
+      return opened.error();
+    log = std::move(opened).value();
+  }
+  auto first = opener();
+  if (!first) {
+    if (log)
+      log->note(to_connection_string(settings), "cannot open: " + first.error().describe());
+    return first.error();
+  }
+  std::unique_ptr<Transport> line =
+      std::make_unique<ReopeningTransport>(std::move(first).value(), std::move(opener));
+  if (log) {
+    log->note(line->describe(), "line opened");
+    line = std::make_unique<LoggingTransport>(std::move(line), std::move(log));
+  }
+  return line;
 }
 
 Result<std::unique_ptr<Transport>> open_transport(std::string_view connection_string) {

@@ -7,6 +7,9 @@
 //       even), stop_bits (1, 1.5, 2), flow (none, software, hardware);
 //       unset names keep the SerialSettings defaults (115200, 8, none, 1, none).
 //   tcp:<host>:<port>[?connect_timeout_ms=<ms>]
+//   either kind also takes traffic_log=<file>: append the line's raw traffic,
+//   with timestamps, to that file (drivers/traffic_log.hpp); the path may not
+//   contain '&'.
 //
 // Example: "serial:/dev/ttyUSB0?baud=9600&parity=even"
 #pragma once
@@ -33,7 +36,9 @@ Result<ConnectionSettings> parse_connection_string(std::string_view text);
 /// The connection string of parsed settings, every setting spelt out.
 std::string to_connection_string(const ConnectionSettings& settings);
 
-/// Opens the transport a connection string names.
+/// Opens the transport a connection string names. The transport can be
+/// reopened after a disconnection (drivers/reopening_transport.hpp), and logs
+/// its traffic if the string asks for a traffic log.
 Result<std::unique_ptr<Transport>> open_transport(std::string_view connection_string);
 /// Opens the transport for parsed settings.
 Result<std::unique_ptr<Transport>> open_transport(const ConnectionSettings& settings);

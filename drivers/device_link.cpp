@@ -4,12 +4,18 @@
 
 namespace veq::drivers {
 
+namespace {
+/// A message the device sent on its own rather than in answer.
+bool is_unsolicited(const protocol::Message& m) {
+  return m.sequence == 0 && m.word != "ok" && m.word != "error";
+}
+}  // namespace
+
 DeviceLink::DeviceLink(Transport& transport, Clock& clock, std::string device_name,
                        LinkOptions options)
-    : transport_(transport), clock_(clock), name_(std::move(device_name)), options_(options) {}
+    : DeviceChannel(transport, clock, std::move(device_name), options) {}
 
-Result<protocol::Message> DeviceLink::call(protocol::Message request) {
-  std::lock_guard<std::mutex> lock(exchange_);
+Result<protocol::Message> DeviceLink::exchange(protocol::Message request) {
   request.sequence = next_sequence_;
   next_sequence_ = next_sequence_ >= 65535 ? 1 : next_sequence_ + 1;
   const std::string command = request.word;
@@ -37,6 +43,10 @@ Result<protocol::Message> DeviceLink::call(protocol::Message request) {
       transport_.discard_input();
       return make_error(ErrorKind::garbled, where() + ": " + reply.error().message);
     }
+    if (is_unsolicited(*reply)) {
+      keep_unsolicited(std::move(reply).value());
+      continue;
+    }
     if (reply->sequence != request.sequence)
       continue;  // a late answer to an earlier request
     if (reply->word == "error") {
@@ -52,6 +62,24 @@ Result<protocol::Message> DeviceLink::call(protocol::Message request) {
     }
     return std::move(reply).value();
   }
+}
+
+Result<std::optional<protocol::Message>> DeviceLink::read_unsolicited(
+    std::chrono::milliseconds timeout) {
+  auto line = transport_.read_line(timeout);
+  if (!line) {
+    if (line.error().kind != ErrorKind::timeout)
+      transport_.discard_input();
+    return line.error();
+  }
+  auto message = protocol::parse(*line);
+  if (!message) {
+    transport_.discard_input();
+    return message.error();
+  }
+  if (is_unsolicited(*message))
+    return std::optional<protocol::Message>(std::move(message).value());
+  return std::optional<protocol::Message>();
 }
 
 }  // namespace veq::drivers

@@ -17,8 +17,11 @@
 
 namespace veq::drivers::protocol {
 
-/// Protocol revision a device reports in its identify reply.
-inline constexpr int kRevision = 1;
+/// Protocol revision a device reports in its identify reply. Revision 2 adds
+/// the roles beyond burette and potentiometric sensor, `features` and
+/// `serial_number` in identify, streamed readings and the burette's valve;
+/// every revision-1 message keeps its meaning.
+inline constexpr int kRevision = 2;
 
 /// One name=value pair. Values are tokens without spaces, or quoted text.
 struct Field {

@@ -52,7 +52,8 @@ const char* flow_control_name(FlowControl flow) {
 std::string to_connection_string(const SerialSettings& s) {
   return "serial:" + s.device + "?baud=" + std::to_string(s.baud_rate) +
          "&data_bits=" + std::to_string(s.data_bits) + "&parity=" + parity_name(s.parity) +
-         "&stop_bits=" + stop_bits_name(s.stop_bits) + "&flow=" + flow_control_name(s.flow);
+         "&stop_bits=" + stop_bits_name(s.stop_bits) + "&flow=" + flow_control_name(s.flow) +
+         (s.traffic_log.empty() ? std::string() : "&traffic_log=" + s.traffic_log);
 }
 
 namespace {

@@ -36,6 +36,9 @@ struct SerialSettings {
   Parity parity = Parity::none;  ///< parity bit
   StopBits stop_bits = StopBits::one;
   FlowControl flow = FlowControl::none;
+  /// File to append the line's raw traffic to (drivers/traffic_log.hpp);
+  /// empty: no log. Used by open_transport(), not by open_serial_transport().
+  std::string traffic_log;
 };
 
 /// "serial:/dev/ttyUSB0?baud=115200&data_bits=8&parity=none&stop_bits=1&flow=none"

@@ -12,8 +12,23 @@ namespace veq::drivers {
 namespace asio = boost::asio;
 using asio::ip::tcp;
 
+namespace {
+/// "tcp:<host>:<port>", an IPv6 address in brackets so that its colons stay
+/// apart from the port's.
+std::string address_of(const TcpSettings& s) {
+  const bool v6 = s.host.find(':') != std::string::npos;
+  return "tcp:" + (v6 ? "[" + s.host + "]" : s.host) + ":" + std::to_string(s.port);
+}
+}  // namespace
+
 std::string to_connection_string(const TcpSettings& s) {
-  return "tcp:" + s.host + ":" + std::to_string(s.port);
+  std::string text = address_of(s);
+  std::string query;
+  if (s.connect_timeout != TcpSettings{}.connect_timeout)
+    query += "connect_timeout_ms=" + std::to_string(s.connect_timeout.count());
+  if (!s.traffic_log.empty())
+    query += (query.empty() ? "" : "&") + std::string("traffic_log=") + s.traffic_log;
+  return query.empty() ? text : text + "?" + query;
 }
 
 namespace {
@@ -29,7 +44,7 @@ void drop_socket_input(tcp::socket& socket) {
 }  // namespace
 
 Result<std::unique_ptr<Transport>> open_tcp_transport(const TcpSettings& s) {
-  const std::string where = to_connection_string(s);
+  const std::string where = address_of(s);
   if (s.host.empty())
     return make_error(ErrorKind::invalid_input, "tcp connection: no host given");
   if (s.port == 0)

@@ -18,6 +18,9 @@ struct TcpSettings {
   /// Longest wait for the connection (ms). 3 s covers a slow network and a
   /// converter waking up, yet tells the user quickly that nothing is there.
   std::chrono::milliseconds connect_timeout{3000};
+  /// File to append the line's raw traffic to (drivers/traffic_log.hpp);
+  /// empty: no log. Used by open_transport(), not by open_tcp_transport().
+  std::string traffic_log;
 };
 
 /// "tcp:host:port"

@@ -8,6 +8,7 @@
 #include <string_view>
 
 #include "common/result.hpp"
+#include "drivers/line_framing.hpp"
 
 namespace veq::drivers {
 
@@ -27,6 +28,19 @@ class Transport {
   virtual Result<std::string> read_line(std::chrono::milliseconds timeout) = 0;
   /// Drops bytes already received but not yet read (after a timeout, say).
   virtual void discard_input() = 0;
+
+  /// Sets the bytes that end a received line (see drivers/line_framing.hpp):
+  /// "\n" by default, as veq's native protocol wants; a device profile sets
+  /// its instrument's ("\r", "\r\n"...). Transports that cannot change it
+  /// accept only "\n" and refuse anything else as ErrorKind::invalid_input.
+  virtual Result<void> set_line_end(std::string_view terminator);
+  /// The bytes that end a received line.
+  virtual std::string line_end() const { return std::string(kNativeLineEnd); }
+
+  /// Opens the line again after it was found closed (a pulled cable, a
+  /// converter that dropped its TCP connection). Bytes in flight are lost.
+  /// Transports that cannot reopen say so as ErrorKind::disconnected.
+  virtual Result<void> reopen();
 };
 
 }  // namespace veq::drivers

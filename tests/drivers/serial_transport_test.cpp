@@ -170,7 +170,12 @@ TEST(SerialTransportOpen, AcceptsTheSettingsAPseudoTerminalSupports) {
     for (Parity parity : {Parity::none, Parity::even, Parity::odd}) {
       for (StopBits stop : {StopBits::one, StopBits::two}) {
         for (FlowControl flow : {FlowControl::none, FlowControl::software, FlowControl::hardware}) {
-          SerialSettings s{pair->slave_path(), baud, 8, parity, stop, flow};
+          SerialSettings s;
+          s.device = pair->slave_path();
+          s.baud_rate = baud;
+          s.parity = parity;
+          s.stop_bits = stop;
+          s.flow = flow;
           auto port = open_serial_transport(s);
           EXPECT_TRUE(port.has_value()) << to_connection_string(s) << ": " << port.error().message;
         }
