@@ -1,5 +1,7 @@
 #include "simulator/bench.hpp"
 
+#include <initializer_list>
+
 #include "chemistry/ligand.hpp"
 
 namespace veq::simulator {
@@ -24,16 +26,41 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
                  scenario.sample.reaction_time_s, clock, scenario.seed * 2654435761u + 2,
                  [this] { return burette_.true_delivered_ml(); }),
       burette_line_("burette", burette_, clock),
-      electrode_line_("electrode", electrode_, clock) {
-  burette_.share_lock(&vessel_lock_);
-  electrode_.share_lock(&vessel_lock_);
+      electrode_line_("electrode", electrode_, clock),
+      doser_(scenario.auxiliary_doser, clock, scenario.seed * 2654435761u + 3),
+      photometer_(
+          scenario.photometer, scenario_chemistry(scenario), clock, scenario.seed * 2654435761u + 4,
+          [this] { return burette_.true_delivered_ml(); },
+          [this] { return doser_.true_added_ml(); }),
+      balance_(scenario.balance, clock, scenario.seed * 2654435761u + 5,
+               [this] { return burette_.true_delivered_ml(); }),
+      stirrer_(scenario.stirrer, clock, scenario.seed * 2654435761u + 6),
+      changer_(scenario.sample_changer, clock, scenario.seed * 2654435761u + 7),
+      doser_line_("auxiliary_doser", doser_, clock),
+      photometer_line_("photometer", photometer_, clock),
+      balance_line_("balance", balance_, clock),
+      stirrer_line_("stirrer", stirrer_, clock),
+      changer_line_("sample_changer", changer_, clock) {
+  // Every device of the vessel answers one request at a time: the electrode
+  // and photometer read what the burette and doser have put in.
+  for (VirtualDevice* d : std::initializer_list<VirtualDevice*>{
+           &burette_, &electrode_, &doser_, &photometer_, &balance_, &stirrer_, &changer_})
+    d->share_lock(&vessel_lock_);
+  electrode_.set_other_liquid([this] { return doser_.true_added_ml(); });
   burette_.set_fault(scenario.burette_fault);
   electrode_.set_fault(scenario.electrode_fault);
+  doser_.set_fault(scenario.auxiliary_doser_fault);
+  photometer_.set_fault(scenario.photometer_fault);
+  balance_.set_fault(scenario.balance_fault);
+  stirrer_.set_fault(scenario.stirrer_fault);
+  changer_.set_fault(scenario.sample_changer_fault);
 }
 
 void SimulatedBench::disconnect() {
-  burette_line_.close();
-  electrode_line_.close();
+  for (drivers::MemoryTransport* line :
+       {&burette_line_, &electrode_line_, &doser_line_, &photometer_line_, &balance_line_,
+        &stirrer_line_, &changer_line_})
+    line->close();
 }
 
 double SimulatedBench::true_equivalence_reading_ml() const {

@@ -59,6 +59,69 @@ struct Reader {
     return &doc.at(name);
   }
 
+  bool integer(const json& obj, const char* section, const char* key, int& out, int min, int max) {
+    double v = out;
+    if (!number(obj, section, key, v, false, min, max))
+      return false;
+    if (v != static_cast<int>(v))
+      return fail(std::string(section) + "." + key, "must be a whole number");
+    out = static_cast<int>(v);
+    return true;
+  }
+
+  bool boolean(const json& obj, const char* section, const char* key, bool& out) {
+    if (!obj.contains(key))
+      return true;
+    if (!obj.at(key).is_boolean())
+      return fail(std::string(section) + "." + key, "must be true or false");
+    out = obj.at(key).get<bool>();
+    return true;
+  }
+
+  bool band(const json& obj, const char* section, const char* key, AbsorptionBand& out) {
+    if (!obj.contains(key))
+      return true;
+    const std::string where = std::string(section) + "." + key;
+    if (!obj.at(key).is_object())
+      return fail(where,
+                  "must be { \"peak_nm\": N, \"epsilon_l_per_mol_cm\": N, \"width_nm\": N }");
+    const json& b = obj.at(key);
+    return number(b, where.c_str(), "peak_nm", out.peak_nm, false, 100.0, 3000.0) &&
+           number(b, where.c_str(), "epsilon_l_per_mol_cm", out.epsilon_l_per_mol_cm, false, 0.0,
+                  1e6) &&
+           number(b, where.c_str(), "width_nm", out.width_nm, false, 1.0, 1000.0);
+  }
+
+  bool reagent(const json& obj, const char* section, const char* key, ReagentSpec& out) {
+    if (!obj.contains(key))
+      return true;
+    const std::string where = std::string(section) + "." + key;
+    const json& r = obj.at(key);
+    if (r.is_boolean()) {
+      out.present = r.get<bool>();
+      return true;
+    }
+    if (!r.is_object())
+      return fail(where, "must be false, true or { \"reservoir_ml\": N }");
+    out.present = true;
+    return number(r, where.c_str(), "reservoir_ml", out.reservoir_ml, false, 0.0, 1e6);
+  }
+
+  bool motor_fault(const json& obj, const char* section, MotorFault& out) {
+    if (!obj.contains("motor_fault"))
+      return true;
+    const json& f = obj.at("motor_fault");
+    const std::string where = std::string(section) + ".motor_fault";
+    if (!f.is_object() || !f.contains("kind") || !f.at("kind").is_string()) {
+      return fail(where, "must be { \"kind\": \"stalled|overload|empty\", \"after_s\": N }");
+    }
+    bool ok = false;
+    out.kind = motor_fault_kind_from_name(f.at("kind").get<std::string>(), &ok);
+    if (!ok)
+      return fail(where + ".kind", "unknown motor fault '" + f.at("kind").get<std::string>() + "'");
+    return number(f, where.c_str(), "after_s", out.after_s, false, 0.0, 1e9);
+  }
+
   bool fault(const json& obj, const char* section, FaultPlan& out) {
     if (!obj.contains("fault"))
       return true;
@@ -89,6 +152,34 @@ FaultKind fault_kind_from_name(std::string_view name, bool* ok) {
     return FaultKind::partial_line;
   *ok = false;
   return FaultKind::none;
+}
+
+MotorFaultKind motor_fault_kind_from_name(std::string_view name, bool* ok) {
+  *ok = true;
+  if (name == "none")
+    return MotorFaultKind::none;
+  if (name == "stalled")
+    return MotorFaultKind::stalled;
+  if (name == "overload")
+    return MotorFaultKind::overload;
+  if (name == "empty")
+    return MotorFaultKind::empty;
+  *ok = false;
+  return MotorFaultKind::none;
+}
+
+const char* motor_fault_kind_name(MotorFaultKind kind) {
+  switch (kind) {
+    case MotorFaultKind::none:
+      return "none";
+    case MotorFaultKind::stalled:
+      return "stalled";
+    case MotorFaultKind::overload:
+      return "overload";
+    case MotorFaultKind::empty:
+      return "empty";
+  }
+  return "none";
 }
 
 const char* fault_kind_name(FaultKind kind) {
@@ -179,6 +270,11 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
              -10.0, 10.0);
     r.number(*j, "burette", "random_error_ml", s.burette.random_error_ml, false, 0.0, 1.0);
     r.number(*j, "burette", "reservoir_ml", s.burette.reservoir_ml, false, 0.0, 1e6);
+    r.text(*j, "burette", "serial_number", s.burette.serial_number);
+    r.number(*j, "burette", "max_fill_rate_ml_per_min", s.burette.max_fill_rate_ml_per_min, false,
+             0.0, 1000.0);
+    r.integer(*j, "burette", "ports", s.burette.ports, 0, 16);
+    r.motor_fault(*j, "burette", s.burette.motor_fault);
     r.fault(*j, "burette", s.burette_fault);
   }
   if (const json* j = r.section(doc, "electrode", false)) {
@@ -191,7 +287,82 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "electrode", "response_time_s", s.electrode.response_time_s, false, 0.0, 600.0);
     r.number(*j, "electrode", "drift_mv_per_min", s.electrode.drift_mv_per_min, false, -100.0,
              100.0);
+    r.text(*j, "electrode", "serial_number", s.electrode.serial_number);
     r.fault(*j, "electrode", s.electrode_fault);
+  }
+  if (const json* j = r.section(doc, "auxiliary_doser", false)) {
+    auto& d = s.auxiliary_doser;
+    r.text(*j, "auxiliary_doser", "model", d.model);
+    r.text(*j, "auxiliary_doser", "serial_number", d.serial_number);
+    r.number(*j, "auxiliary_doser", "max_dose_ml", d.max_dose_ml, false, 0.001, 1000.0);
+    r.number(*j, "auxiliary_doser", "max_rate_ml_per_min", d.max_rate_ml_per_min, false, 0.01,
+             1000.0);
+    r.number(*j, "auxiliary_doser", "systematic_error_percent", d.systematic_error_percent, false,
+             -10.0, 10.0);
+    r.reagent(*j, "auxiliary_doser", "buffer", d.buffer);
+    r.reagent(*j, "auxiliary_doser", "masking_agent", d.masking_agent);
+    r.reagent(*j, "auxiliary_doser", "indicator", d.indicator);
+    r.reagent(*j, "auxiliary_doser", "water", d.water);
+    r.motor_fault(*j, "auxiliary_doser", d.motor_fault);
+    r.fault(*j, "auxiliary_doser", s.auxiliary_doser_fault);
+  }
+  if (const json* j = r.section(doc, "photometer", false)) {
+    auto& p = s.photometer;
+    r.text(*j, "photometer", "model", p.model);
+    r.text(*j, "photometer", "serial_number", p.serial_number);
+    r.number(*j, "photometer", "min_wavelength_nm", p.min_wavelength_nm, false, 100.0, 3000.0);
+    r.number(*j, "photometer", "max_wavelength_nm", p.max_wavelength_nm, false, 100.0, 3000.0);
+    r.number(*j, "photometer", "wavelength_nm", p.wavelength_nm, false, 100.0, 3000.0);
+    r.number(*j, "photometer", "path_length_cm", p.path_length_cm, false, 0.01, 100.0);
+    r.number(*j, "photometer", "baseline_absorbance", p.baseline_absorbance, false, 0.0, 5.0);
+    r.number(*j, "photometer", "noise_absorbance", p.noise_absorbance, false, 0.0, 1.0);
+    r.band(*j, "photometer", "metal", p.metal);
+    r.band(*j, "photometer", "complex", p.complex);
+    r.band(*j, "photometer", "titrant", p.titrant);
+    if (r.error.empty() &&
+        (p.min_wavelength_nm > p.max_wavelength_nm || p.wavelength_nm < p.min_wavelength_nm ||
+         p.wavelength_nm > p.max_wavelength_nm)) {
+      r.fail("photometer.wavelength_nm", "must lie within min_wavelength_nm .. max_wavelength_nm");
+    }
+    r.fault(*j, "photometer", s.photometer_fault);
+  }
+  if (const json* j = r.section(doc, "balance", false)) {
+    auto& b = s.balance;
+    r.text(*j, "balance", "model", b.model);
+    r.text(*j, "balance", "serial_number", b.serial_number);
+    r.number(*j, "balance", "capacity_g", b.capacity_g, false, 0.001, 1e6);
+    r.number(*j, "balance", "readability_g", b.readability_g, false, 1e-7, 100.0);
+    r.number(*j, "balance", "load_g", b.load_g, false, 0.0, 1e6);
+    r.boolean(*j, "balance", "receives_burette", b.receives_burette);
+    r.number(*j, "balance", "density_g_per_ml", b.density_g_per_ml, false, 0.1, 30.0);
+    r.number(*j, "balance", "noise_g", b.noise_g, false, 0.0, 100.0);
+    r.number(*j, "balance", "settle_time_s", b.settle_time_s, false, 0.0, 600.0);
+    r.number(*j, "balance", "stable_band_g", b.stable_band_g, false, 0.0, 100.0);
+    r.fault(*j, "balance", s.balance_fault);
+  }
+  if (const json* j = r.section(doc, "stirrer", false)) {
+    auto& t = s.stirrer;
+    r.text(*j, "stirrer", "model", t.model);
+    r.text(*j, "stirrer", "serial_number", t.serial_number);
+    r.number(*j, "stirrer", "max_speed_rpm", t.max_speed_rpm, false, 1.0, 1e5);
+    r.number(*j, "stirrer", "min_speed_rpm", t.min_speed_rpm, false, 0.0, 1e5);
+    r.number(*j, "stirrer", "ramp_rpm_per_s", t.ramp_rpm_per_s, false, 1.0, 1e6);
+    r.number(*j, "stirrer", "decouple_above_rpm", t.decouple_above_rpm, false, 0.0, 1e5);
+    if (r.error.empty() && t.min_speed_rpm > t.max_speed_rpm)
+      r.fail("stirrer.min_speed_rpm", "must not exceed max_speed_rpm");
+    r.fault(*j, "stirrer", s.stirrer_fault);
+  }
+  if (const json* j = r.section(doc, "sample_changer", false)) {
+    auto& c = s.sample_changer;
+    r.text(*j, "sample_changer", "model", c.model);
+    r.text(*j, "sample_changer", "serial_number", c.serial_number);
+    r.integer(*j, "sample_changer", "positions", c.positions, 1, 1000);
+    r.number(*j, "sample_changer", "seconds_per_position", c.seconds_per_position, false, 0.0,
+             600.0);
+    r.number(*j, "sample_changer", "lift_time_s", c.lift_time_s, false, 0.0, 600.0);
+    r.boolean(*j, "sample_changer", "rinse", c.rinse);
+    r.integer(*j, "sample_changer", "blocked_position", c.blocked_position, 0, 1000);
+    r.fault(*j, "sample_changer", s.sample_changer_fault);
   }
   if (!r.error.empty())
     return make_error(ErrorKind::invalid_input, r.error);

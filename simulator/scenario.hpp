@@ -33,8 +33,18 @@ struct TitrantSpec {
   std::vector<double> pka;            ///< acid constants of the titrant
 };
 
+/// A mechanical fault of a motor: from a moment of device time on, any
+/// motion stops at once and the device reports it (append-only names).
+enum class MotorFaultKind : int { none = 0, stalled = 1, overload = 2, empty = 3 };
+
+struct MotorFault {
+  MotorFaultKind kind = MotorFaultKind::none;
+  double after_s = 0.0;  ///< seconds of device time before the fault begins
+};
+
 struct BuretteSpec {
   std::string model = "veq virtual burette";
+  std::string serial_number = "virtual-burette-1";
   double cylinder_ml = 20.0;
   double steps_per_cylinder = 20000.0;  ///< resolution: cylinder_ml / steps per step
   double max_rate_ml_per_min = 40.0;
@@ -42,6 +52,11 @@ struct BuretteSpec {
   double systematic_error_percent = 0.0;  ///< true delivery = commanded * (1 + e/100) (hidden)
   double random_error_ml = 0.0;           ///< standard deviation of each dose's error (hidden)
   double reservoir_ml = 1000.0;           ///< titrant left in the bottle
+  /// Fastest filling rate, mL/min; 0: the same as max_rate_ml_per_min.
+  double max_fill_rate_ml_per_min = 0.0;
+  /// Outlet ports of the valve the host may choose (1..ports); 0: none.
+  int ports = 0;
+  MotorFault motor_fault;
 };
 
 struct ElectrodeSpec {
@@ -53,6 +68,94 @@ struct ElectrodeSpec {
   double noise_mv = 0.1;          ///< standard deviation of Gaussian noise, mV
   double response_time_s = 2.0;   ///< first-order time constant of the response, s
   double drift_mv_per_min = 0.0;  ///< steady drift of the reference electrode, mV/min
+  std::string serial_number = "virtual-meter-1";
+};
+
+/// One reagent bottle of an auxiliary doser.
+struct ReagentSpec {
+  bool present = false;         ///< the doser has a pump for it
+  double reservoir_ml = 500.0;  ///< left in the bottle, mL
+};
+
+struct AuxiliaryDoserSpec {
+  std::string model = "veq virtual reagent doser";
+  std::string serial_number = "virtual-doser-1";
+  double max_dose_ml = 5.0;               ///< largest single dose accepted, mL
+  double max_rate_ml_per_min = 20.0;      ///< fastest pumping, mL/min
+  double systematic_error_percent = 0.0;  ///< true volume = asked * (1 + e/100) (hidden)
+  ReagentSpec buffer{true, 500.0};
+  ReagentSpec masking_agent{false, 250.0};
+  ReagentSpec indicator{true, 100.0};
+  ReagentSpec water{true, 2000.0};
+  MotorFault motor_fault;
+};
+
+/// An absorption band: molar absorptivity falling off as a Gaussian in
+/// wavelength around its peak (an invented band shape, good enough for a
+/// demonstration; real spectra are asymmetric and broader in the red).
+struct AbsorptionBand {
+  double peak_nm = 600.0;
+  double epsilon_l_per_mol_cm = 0.0;  ///< molar absorptivity at the peak, L/(mol cm)
+  double width_nm = 60.0;             ///< standard deviation of the band, nm
+};
+
+struct PhotometerSpec {
+  std::string model = "veq virtual photometer";
+  std::string serial_number = "virtual-photometer-1";
+  double min_wavelength_nm = 380.0;
+  double max_wavelength_nm = 800.0;
+  double wavelength_nm = 745.0;       ///< set at power-on
+  double path_length_cm = 1.0;        ///< light path through the vessel (a dipping probe)
+  double baseline_absorbance = 0.05;  ///< the cell and solvent, before any reference is taken
+  double noise_absorbance = 0.0005;   ///< standard deviation of each reading's noise
+  /// Bands of the free metal, the 1:1 complex and the free titrant. Default:
+  /// only the complex absorbs, a copper-EDTA-like band near 745 nm with
+  /// ε about 95 L/(mol cm) (recalled from memory; invented for the demo).
+  AbsorptionBand metal{800.0, 0.0, 60.0};
+  AbsorptionBand complex{745.0, 95.0, 90.0};
+  AbsorptionBand titrant{300.0, 0.0, 30.0};
+};
+
+struct BalanceSpec {
+  std::string model = "veq virtual balance";
+  std::string serial_number = "virtual-balance-1";
+  double capacity_g = 220.0;
+  double readability_g = 0.0001;
+  double load_g = 0.0;  ///< what stands on the pan at the start, g
+  /// The burette delivers onto the balance (checking a burette by weighing
+  /// the water it delivers): its true delivered volume times the density
+  /// adds to the load.
+  bool receives_burette = false;
+  /// Density of the delivered liquid, g/mL: water at 20 °C is 0.99820 g/mL
+  /// (CRC Handbook of Chemistry and Physics, density of water table;
+  /// recalled from memory).
+  double density_g_per_ml = 0.99820;
+  double noise_g = 0.00005;       ///< standard deviation of the reading's noise, g
+  double settle_time_s = 1.5;     ///< first-order time constant after a load change, s
+  double stable_band_g = 0.0003;  ///< reading within this of the load counts as stable, g
+};
+
+struct StirrerSpec {
+  std::string model = "veq virtual stirrer";
+  std::string serial_number = "virtual-stirrer-1";
+  double max_speed_rpm = 1500.0;
+  double min_speed_rpm = 100.0;
+  double ramp_rpm_per_s = 400.0;  ///< how fast the speed follows a new target
+  /// Above this target the stir bar decouples: the speed drops to 0 and the
+  /// stirrer reports "stalled". 0: never.
+  double decouple_above_rpm = 0.0;
+};
+
+struct SampleChangerSpec {
+  std::string model = "veq virtual sample changer";
+  std::string serial_number = "virtual-changer-1";
+  int positions = 12;
+  double seconds_per_position = 1.0;  ///< carrying the head one position on
+  double lift_time_s = 2.0;           ///< lowering or raising the head
+  bool rinse = true;                  ///< has a rinse pump
+  /// A position the head cannot reach (a vessel in the way): a move there
+  /// stops with fault "blocked". 0: none.
+  int blocked_position = 0;
 };
 
 /// Faults a virtual device can be told to show (append-only names).
@@ -73,6 +176,16 @@ struct Scenario {
   ElectrodeSpec electrode;
   FaultPlan burette_fault;
   FaultPlan electrode_fault;
+  AuxiliaryDoserSpec auxiliary_doser;
+  PhotometerSpec photometer;
+  BalanceSpec balance;
+  StirrerSpec stirrer;
+  SampleChangerSpec sample_changer;
+  FaultPlan auxiliary_doser_fault;
+  FaultPlan photometer_fault;
+  FaultPlan balance_fault;
+  FaultPlan stirrer_fault;
+  FaultPlan sample_changer_fault;
 };
 
 /// Parses a scenario document. Errors name the field (and line for syntax).
@@ -82,5 +195,8 @@ Result<Scenario> load_scenario(const std::string& path);
 
 FaultKind fault_kind_from_name(std::string_view name, bool* ok);
 const char* fault_kind_name(FaultKind kind);
+MotorFaultKind motor_fault_kind_from_name(std::string_view name, bool* ok);
+/// "none", "stalled", "overload", "empty"
+const char* motor_fault_kind_name(MotorFaultKind kind);
 
 }  // namespace veq::simulator

@@ -21,6 +21,11 @@ VirtualBurette::VirtualBurette(const BuretteSpec& spec, drivers::Clock& clock, s
       cylinder_content_ml_(spec.cylinder_ml),
       host_silence_limit_(drivers::from_seconds(kDefaultHostSilenceS)) {}
 
+double VirtualBurette::fill_rate_limit() const {
+  return spec_.max_fill_rate_ml_per_min > 0.0 ? spec_.max_fill_rate_ml_per_min
+                                              : spec_.max_rate_ml_per_min;
+}
+
 Duration VirtualBurette::motion_end(std::string* why) const {
   const Duration planned =
       motion_.start + drivers::from_seconds(motion_.volume_ml / motion_.rate_ml_per_min * 60.0);
@@ -36,6 +41,15 @@ Duration VirtualBurette::motion_end(std::string* why) const {
   if (host_silence_limit_ > Duration::zero() && last_contact_ + host_silence_limit_ < end) {
     end = std::max(motion_.start, last_contact_ + host_silence_limit_);
     reason = "host_silence";
+  }
+  // A mechanical fault (stalled piston, overloaded drive, air drawn from an
+  // empty bottle) stops the motor where it is.
+  if (spec_.motor_fault.kind != MotorFaultKind::none) {
+    const Duration at = drivers::from_seconds(spec_.motor_fault.after_s);
+    if (at < end) {
+      end = std::max(motion_.start, at);
+      reason = "fault";
+    }
   }
   if (why)
     *why = reason;
@@ -98,6 +112,8 @@ void VirtualBurette::finish_motion(double moved_ml, const std::string& why) {
     spec_.reservoir_ml -= moved_ml;
   }
   last_stop_ = why;
+  if (why == "fault")
+    faulted_ = true;
   motion_ = Motion{};
 }
 
@@ -112,12 +128,18 @@ protocol::Message VirtualBurette::status_reply(std::uint32_t sequence) const {
     state = "filling";
     content += moved_at(clock_.now());
   }
+  if (faulted_)
+    state = "fault";
   m.add("state", state);
   m.add("cylinder_ml", content, 5);
   m.add("delivered_ml", counter_ml(), 5);
   m.add("reservoir_ml", spec_.reservoir_ml, 2);
   m.add("last_stop", last_stop_);
-  m.add("fault", last_stop_ == "host_silence" ? "host_silent" : "none");
+  m.add("fault", faulted_                       ? motor_fault_kind_name(spec_.motor_fault.kind)
+                 : last_stop_ == "host_silence" ? "host_silent"
+                                                : "none");
+  if (spec_.ports > 0)
+    m.add("port", std::to_string(port_));
   return m;
 }
 
@@ -135,15 +157,37 @@ protocol::Message VirtualBurette::handle(const protocol::Message& request) {
     m.add("steps_per_cylinder", spec_.steps_per_cylinder, 0);
     m.add("max_rate_ml_per_min", spec_.max_rate_ml_per_min, 3);
     m.add("max_dose_ml", spec_.max_dose_ml, 4);
+    m.add("max_fill_rate_ml_per_min", fill_rate_limit(), 3);
+    if (spec_.ports > 0)
+      m.add("ports", std::to_string(spec_.ports));
+    m.add("serial_number", spec_.serial_number);
+    m.add("features", spec_.ports > 0 ? "fill,valve,reset_counter,host_silence_limit,ping"
+                                      : "fill,reset_counter,host_silence_limit,ping");
     return m;
   }
   if (word == "status")
     return status_reply(seq);
   if (word == "stop") {
-    // Stops at once: the motion ends where it is now.
+    // Stops at once: the motion ends where it is now. Stopping also
+    // acknowledges a motor fault.
     if (motion_.kind != MotionKind::none)
       finish_motion(moved_at(clock_.now()), "host");
-    return status_reply(seq);
+    auto reply = status_reply(seq);
+    faulted_ = false;
+    return reply;
+  }
+  if (word == "valve") {
+    if (spec_.ports <= 0)
+      return protocol::error_reply(seq, "unknown_command", "this burette has no valve to turn");
+    if (motion_.kind != MotionKind::none)
+      return protocol::error_reply(seq, "busy", "cannot turn the valve while moving");
+    auto port = request.number("port");
+    if (!port || *port < 1 || *port > spec_.ports || std::floor(*port) != *port) {
+      return protocol::error_reply(
+          seq, "bad_field", "port must be a whole number from 1 to " + std::to_string(spec_.ports));
+    }
+    port_ = static_cast<int>(*port);
+    return protocol::ok_reply(seq);
   }
   if (word == "reset_counter") {
     if (motion_.kind != MotionKind::none) {
@@ -170,12 +214,13 @@ protocol::Message VirtualBurette::handle(const protocol::Message& request) {
     if (!rate || *rate <= 0.0) {
       return protocol::error_reply(seq, "bad_field", "rate_ml_per_min must be a number > 0");
     }
-    if (*rate > spec_.max_rate_ml_per_min * (1.0 + 1e-9)) {
-      return protocol::error_reply(seq, "over_limit",
-                                   "rate above the device maximum of " +
-                                       protocol::format_number(spec_.max_rate_ml_per_min, 3) +
-                                       " mL/min");
+    const double max_rate = word == "fill" ? fill_rate_limit() : spec_.max_rate_ml_per_min;
+    if (*rate > max_rate * (1.0 + 1e-9)) {
+      return protocol::error_reply(
+          seq, "over_limit",
+          "rate above the device maximum of " + protocol::format_number(max_rate, 3) + " mL/min");
     }
+    faulted_ = false;
     Motion m;
     m.start = clock_.now();
     m.rate_ml_per_min = *rate;

@@ -18,8 +18,11 @@ class VirtualBurette final : public VirtualDevice {
   double counter_ml() const;
   /// True while the motor moves (dose or fill) at the clock's present time.
   bool moving() const;
-  /// How the last motion ended: "completed", "host", "time_limit", "host_silence".
+  /// How the last motion ended: "completed", "host", "time_limit",
+  /// "host_silence", "fault" (a motor fault from the scenario).
   const std::string& last_stop() const { return last_stop_; }
+  /// Valve port in use (1..ports; 1 if the valve has no choice).
+  int port() const { return port_; }
 
  protected:
   drivers::protocol::Message handle(const drivers::protocol::Message& request) override;
@@ -44,6 +47,7 @@ class VirtualBurette final : public VirtualDevice {
   /// Volume moved by the current motion at time t (mL, quantised to steps).
   double moved_at(drivers::Duration t) const;
   drivers::protocol::Message status_reply(std::uint32_t sequence) const;
+  double fill_rate_limit() const;
 
   BuretteSpec spec_;
   double step_ml_;
@@ -54,6 +58,9 @@ class VirtualBurette final : public VirtualDevice {
   std::string last_stop_ = "completed";
   drivers::Duration last_contact_{0};
   drivers::Duration host_silence_limit_;
+  int port_ = 1;
+  /// A motor fault stopped the last motion; cleared by "stop".
+  bool faulted_ = false;
 };
 
 }  // namespace veq::simulator
