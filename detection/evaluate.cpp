@@ -6,16 +6,18 @@
 #include "detection/crossing.hpp"
 #include "detection/derivative.hpp"
 #include "detection/gran.hpp"
+#include "detection/model_fit.hpp"
 #include "detection/segments.hpp"
 
 namespace veq::detection {
 
 namespace {
-constexpr std::array<std::string_view, 4> kMethodNames = {"derivative", "segments", "crossing",
-                                                          "gran"};
+constexpr std::array<std::string_view, 5> kMethodNames = {"derivative", "segments", "crossing",
+                                                          "gran", "model"};
 
 bool uses_chemistry(std::string_view method, const nlohmann::json& options) {
-  return (method == "gran") && options.is_object() && options.contains("sample");
+  return (method == "gran" || method == "model") && options.is_object() &&
+         options.contains("sample");
 }
 
 veq::Result<Evaluation> dispatch(const Curve& curve, std::string_view method,
@@ -48,6 +50,13 @@ veq::Result<Evaluation> dispatch(const Curve& curve, std::string_view method,
       return parsed.error();
     return library ? find_endpoints_by_gran(curve, *parsed, *library)
                    : find_endpoints_by_gran(curve, *parsed);
+  }
+  if (method == "model") {
+    auto parsed = model_fit_options_from_json(o);
+    if (!parsed)
+      return parsed.error();
+    return library ? fit_titration_model(curve, *parsed, *library)
+                   : fit_titration_model(curve, *parsed);
   }
   std::string known;
   for (std::string_view name : kMethodNames) {

@@ -68,17 +68,19 @@ TrialScenario make_scenario(std::string_view name) {
                     "of it as the titrant dilutes the sample";
     t.sample = ammonia_sample(copper ? "Cu" : "Zn");
   } else if (name == "weak_log_k_7" || name == "weak_log_k_6" || name == "weak_log_k_5_5") {
+    // Calcium at the pH where its conditional constant with EDTA (library
+    // constants) falls to 10^7, 10^6 or 10^5.5; 0.002 mol/L so that
+    // log10(C K') at the equivalence point is 4.2, 3.2 and 2.7, below the
+    // common-practice criterion of 6 for a sharp endpoint.
     const double ph = name == "weak_log_k_7" ? 6.8 : name == "weak_log_k_6" ? 6.05 : 5.75;
-    t.description = std::string("calcium 0.01 mol/L at pH ") +
-                    (ph == 6.8    ? "6.8"
-                     : ph == 6.05 ? "6.05"
-                                  : "5.75") +
-                    " with 0.05 mol/L EDTA (conditional log K' " +
-                    (ph == 6.8    ? "7.0"
-                     : ph == 6.05 ? "6.0"
-                                  : "5.5") +
-                    "), calcium electrode, 0.1 mV noise: a weak break";
+    const char* text = name == "weak_log_k_7"   ? "6.8 (conditional log K' 7.0)"
+                       : name == "weak_log_k_6" ? "6.05 (conditional log K' 6.0)"
+                                                : "5.75 (conditional log K' 5.5)";
+    t.description = std::string("calcium 0.002 mol/L at pH ") + text +
+                    " with 0.01 mol/L EDTA, calcium electrode, 0.1 mV noise: a weak break";
     t.sample = calcium_sample(ph);
+    t.sample.metals[0].conc_mol_per_l = 0.002;
+    t.sample.titrant.conc_mol_per_l = 0.01;
   } else if (name == "two_metals") {
     t.description =
         "calcium and magnesium 0.005 mol/L each at pH 10 in 0.1 mol/L ammonia with 0.05 mol/L "

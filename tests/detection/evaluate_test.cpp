@@ -16,11 +16,12 @@ Curve ramp() {
 }
 
 TEST(Evaluate, KnowsItsMethods) {
-  ASSERT_EQ(method_names().size(), 4u);
+  ASSERT_EQ(method_names().size(), 5u);
   EXPECT_EQ(method_names()[0], "derivative");
   EXPECT_EQ(method_names()[1], "segments");
   EXPECT_EQ(method_names()[2], "crossing");
   EXPECT_EQ(method_names()[3], "gran");
+  EXPECT_EQ(method_names()[4], "model");
 }
 
 TEST(Evaluate, DispatchesByName) {
@@ -44,7 +45,8 @@ TEST(Evaluate, ErrorsNameTheProblem) {
   ASSERT_FALSE(method);
   EXPECT_EQ(method.error().kind, ErrorKind::invalid_input);
   EXPECT_NE(method.error().message.find("'steepest'"), std::string::npos);
-  EXPECT_NE(method.error().message.find("derivative, segments, crossing, gran"), std::string::npos);
+  EXPECT_NE(method.error().message.find("derivative, segments, crossing, gran, model"),
+            std::string::npos);
   auto option = evaluate(ramp(), "derivative", {{"window", 5}});
   ASSERT_FALSE(option);
   EXPECT_NE(option.error().message.find("'window'"), std::string::npos);
