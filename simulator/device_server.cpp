@@ -43,6 +43,9 @@ struct Line {
   std::optional<tcp::acceptor> acceptor;
   std::optional<tcp::socket> socket;
   bool refusing = false;
+  /// Counts connections: a handler of a closed connection must not touch
+  /// the next one, which may sit at the same address.
+  std::uint64_t session = 0;
 };
 
 }  // namespace
@@ -137,11 +140,8 @@ class DeviceServer::Impl {
     on_thread([&] {
       if (auto* line = find(name)) {
         line->refusing = refuse;
-        if (refuse && line->socket) {
-          boost::system::error_code ignored;
-          line->socket->close(ignored);
-          line->socket.reset();
-        }
+        if (refuse && line->socket)
+          close(*line, false);
       }
     });
   }
@@ -171,7 +171,9 @@ class DeviceServer::Impl {
       line.socket->close(ignored);
       line.socket.reset();
     }
+    ++line.session;
     line.output.clear();
+    line.writing = false;
     if (for_good) {
       line.timer.cancel();
       if (line.acceptor)
@@ -224,17 +226,15 @@ class DeviceServer::Impl {
   }
 
   void read_tcp(Line& line) {
-    tcp::socket* socket = &*line.socket;
-    socket->async_read_some(
+    const std::uint64_t session = line.session;
+    line.socket->async_read_some(
         asio::buffer(line.input),
-        [this, &line, socket](const boost::system::error_code& ec, std::size_t n) {
+        [this, &line, session](const boost::system::error_code& ec, std::size_t n) {
+          if (session != line.session)
+            return;  // a connection closed since; its successor has its own reads
           if (ec) {
-            // The host went, or the line was pulled: wait for the next host.
-            if (line.socket && &*line.socket == socket) {
-              boost::system::error_code ignored;
-              line.socket->close(ignored);
-              line.socket.reset();
-            }
+            // The host went: wait for the next one.
+            close(line, false);
             return;
           }
           send(line, serve(line, std::string_view(line.input.data(), n)));
@@ -256,7 +256,10 @@ class DeviceServer::Impl {
     if (line.writing || line.output.empty())
       return;
     line.writing = true;
-    auto done = [this, &line](const boost::system::error_code& ec, std::size_t) {
+    const std::uint64_t session = line.session;
+    auto done = [this, &line, session](const boost::system::error_code& ec, std::size_t) {
+      if (session != line.session)
+        return;  // the line was closed meanwhile
       line.writing = false;
       if (!line.output.empty())
         line.output.pop_front();
