@@ -18,6 +18,8 @@
 #include "drivers/clock.hpp"
 #include "drivers/connection.hpp"
 #include "drivers/device_link.hpp"
+#include "drivers/photometer_client.hpp"
+#include "drivers/profile_link.hpp"
 #include "drivers/sensor_client.hpp"
 #include "simulator/builtin_scenarios.hpp"
 #include "simulator/pseudo_terminal_bench.hpp"
@@ -309,6 +311,49 @@ TEST(VeqSimProcess, WritesPortsServesAndStopsCleanlyOnSigterm) {
   ASSERT_EQ(kill(pid, SIGTERM), 0);
   EXPECT_EQ(wait_exit(pid, 10s), 0);
   EXPECT_FALSE(std::filesystem::exists(ports)) << "the ports file is removed on exit";
+  std::filesystem::remove_all(dir);
+}
+
+TEST(VeqSimProcess, ServesEveryInstrumentOverTcpWithTheBuretteOnItsProfile) {
+  const auto dir =
+      std::filesystem::temp_directory_path() / ("veq-sim-all-" + std::to_string(::getpid()));
+  std::filesystem::create_directories(dir);
+  const std::string ports = (dir / "ports.txt").string();
+  const std::string profile =
+      std::string(VEQ_SOURCE_DIR) + "/drivers/profiles/stonebridge_burette.profile";
+  const pid_t pid = spawn({kSimulator, "--time-scale", "50", "--all-instruments", "--tcp",
+                           "--burette-profile", profile, "--ports-file", ports});
+  ASSERT_GT(pid, 0);
+  const auto deadline = std::chrono::steady_clock::now() + 10s;
+  while (!std::filesystem::exists(ports) && std::chrono::steady_clock::now() < deadline)
+    std::this_thread::sleep_for(10ms);
+  auto lines = read_key_values(ports);
+  for (const char* name : {"burette", "electrode", "auxiliary_doser", "photometer", "balance",
+                           "stirrer", "sample_changer"}) {
+    ASSERT_TRUE(lines.count(name)) << name << " not in " << ports;
+    EXPECT_EQ(lines[name].rfind("tcp:127.0.0.1:", 0), 0u) << lines[name];
+  }
+  {
+    drivers::ScaledClock clock(50.0);
+    auto b = drivers::open_transport(lines["burette"]);
+    auto p = drivers::open_transport(lines["photometer"]);
+    ASSERT_TRUE(b && p);
+    auto parsed = drivers::profile::load_profile(profile);
+    ASSERT_TRUE(parsed.has_value());
+    auto burette_link = drivers::ProfileLink::open(**b, clock, "burette", *parsed);
+    ASSERT_TRUE(burette_link.has_value());
+    drivers::BuretteClient burette(**burette_link);
+    auto info = burette.identify();
+    ASSERT_TRUE(info.has_value()) << info.error().message;
+    EXPECT_EQ(info->model, "Stonebridge PB-25 piston burette");
+    drivers::DeviceLink photometer_link(**p, clock, "photometer");
+    drivers::PhotometerClient photometer(photometer_link);
+    auto reading = photometer.read();
+    ASSERT_TRUE(reading.has_value()) << reading.error().message;
+  }
+  ASSERT_EQ(kill(pid, SIGTERM), 0);
+  EXPECT_EQ(wait_exit(pid, 10s), 0);
+  EXPECT_FALSE(std::filesystem::exists(ports));
   std::filesystem::remove_all(dir);
 }
 
