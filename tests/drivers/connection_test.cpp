@@ -69,6 +69,19 @@ TEST(ConnectionString, RoundTripsThroughItsText) {
   EXPECT_EQ(to_connection_string(*tcp), "tcp:192.0.2.10:4001");
 }
 
+TEST(ConnectionString, TrafficLogOnEitherKind) {
+  auto serial = parse_connection_string("serial:/dev/ttyUSB0?baud=9600&traffic_log=/tmp/b.log");
+  ASSERT_TRUE(serial.has_value()) << serial.error().message;
+  EXPECT_EQ(std::get<SerialSettings>(*serial).traffic_log, "/tmp/b.log");
+  EXPECT_EQ(to_connection_string(*serial),
+            "serial:/dev/ttyUSB0?baud=9600&data_bits=8&parity=none&stop_bits=1&flow=none&"
+            "traffic_log=/tmp/b.log");
+  auto tcp = parse_connection_string("tcp:192.0.2.10:4001?traffic_log=/tmp/t.log");
+  ASSERT_TRUE(tcp.has_value()) << tcp.error().message;
+  EXPECT_EQ(std::get<TcpSettings>(*tcp).traffic_log, "/tmp/t.log");
+  EXPECT_EQ(to_connection_string(*tcp), "tcp:192.0.2.10:4001?traffic_log=/tmp/t.log");
+}
+
 TEST(ConnectionString, Tcp) {
   auto parsed = parse_connection_string("tcp:titrator-3.lab:4001?connect_timeout_ms=500");
   ASSERT_TRUE(parsed.has_value()) << parsed.error().message;
@@ -107,6 +120,8 @@ TEST(ConnectionString, EveryBadPartIsNamed) {
       {"tcp:lab-host:http", "port 'http'"},
       {"tcp:lab-host:70000", "port '70000'"},
       {"tcp:lab-host:4001?timeout=5", "unknown tcp setting 'timeout'"},
+      {"tcp:lab-host:4001?traffic_log=", "traffic_log needs a file path"},
+      {"serial:/dev/ttyS0?traffic_log=", "traffic_log needs a file path"},
   };
   for (const auto& c : cases) {
     const std::string message = refusal(c.text);
