@@ -220,7 +220,6 @@ protocol::Message VirtualBurette::handle(const protocol::Message& request) {
           seq, "over_limit",
           "rate above the device maximum of " + protocol::format_number(max_rate, 3) + " mL/min");
     }
-    faulted_ = false;
     Motion m;
     m.start = clock_.now();
     m.rate_ml_per_min = *rate;
@@ -259,6 +258,8 @@ protocol::Message VirtualBurette::handle(const protocol::Message& request) {
       m.kind = MotionKind::fill;
       m.volume_ml = room;
     }
+    // A new motion clears a fault the host has not acknowledged yet.
+    faulted_ = false;
     if (m.volume_ml <= 0.0)
       return protocol::ok_reply(seq);
     motion_ = m;
