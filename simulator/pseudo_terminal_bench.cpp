@@ -13,6 +13,7 @@
 #include <boost/asio/io_context.hpp>
 #include <boost/asio/posix/stream_descriptor.hpp>
 #include <boost/asio/post.hpp>
+#include <boost/asio/steady_timer.hpp>
 #include <boost/asio/write.hpp>
 
 #include "drivers/clock.hpp"
@@ -29,7 +30,8 @@ struct ServedLine {
       : name(std::move(line_name)),
         pty(std::move(terminal)),
         master(io, pty.release_master()),
-        device(served) {}
+        device(served),
+        stream_timer(io) {}
 
   std::string name;
   drivers::PseudoTerminal pty;  ///< keeps the slave side open (see PseudoTerminal)
@@ -38,6 +40,7 @@ struct ServedLine {
   std::array<char, 1024> input{};
   std::deque<std::string> output;
   bool writing = false;
+  asio::steady_timer stream_timer;  ///< the device's next streamed reading
 };
 
 class PseudoTerminalBench::Impl {
@@ -124,6 +127,35 @@ class PseudoTerminalBench::Impl {
   void close(ServedLine& line) {
     boost::system::error_code ignored;
     line.master.close(ignored);
+    line.stream_timer.cancel();
+  }
+
+  /// Arms the timer for the device's next streamed reading (a meter asked to
+  /// stream sends on its own), converting device time to real time.
+  void schedule_stream(ServedLine& line) {
+    const auto due = line.device.next_unsolicited_at();
+    if (!due || !line.master.is_open()) {
+      line.stream_timer.cancel();
+      return;
+    }
+    const auto wait =
+        *due > clock_.now() ? clock_.to_real(*due - clock_.now()) : drivers::Duration::zero();
+    line.stream_timer.expires_after(wait);
+    line.stream_timer.async_wait([this, &line](const boost::system::error_code& ec) {
+      if (ec || !line.master.is_open())
+        return;
+      std::string bytes;
+      try {
+        bytes = line.device.unsolicited();
+      } catch (const std::exception& e) {
+        note(line.name + " (streamed reading): " + e.what());
+      }
+      if (!bytes.empty()) {
+        line.output.push_back(std::move(bytes));
+        write(line);
+      }
+      schedule_stream(line);
+    });
   }
 
   void read(ServedLine& line) {
@@ -149,6 +181,7 @@ class PseudoTerminalBench::Impl {
             line.output.push_back(std::move(reply));
             write(line);
           }
+          schedule_stream(line);
           read(line);
         });
   }

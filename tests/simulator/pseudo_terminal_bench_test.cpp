@@ -196,6 +196,22 @@ TEST(PseudoTerminalBench, PartialLineIsATimeoutThatSaysSoAndTheLineRecovers) {
   EXPECT_EQ(again->state, drivers::BuretteState::idle);
 }
 
+TEST(PseudoTerminalBench, TheElectrodeStreamsOverItsPort) {
+  auto bench = start_bench(demo_scenario());
+  ASSERT_TRUE(bench);
+  Host host;
+  ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
+  // 100 ms of device time is 2 ms of real time at 50x.
+  ASSERT_TRUE(host.sensor->start_streaming(100ms).has_value());
+  for (int i = 0; i < 10; ++i) {
+    auto r = host.sensor->next_streamed(300ms);
+    ASSERT_TRUE(r.has_value()) << r.error().message;
+    EXPECT_DOUBLE_EQ(r->temperature_c, 25.0);
+  }
+  ASSERT_TRUE(host.sensor->stop_streaming().has_value());
+  EXPECT_TRUE(bench->problems().empty());
+}
+
 TEST(PseudoTerminalBench, PulledCableIsDisconnected) {
   auto bench = start_bench(demo_scenario());
   ASSERT_TRUE(bench);
