@@ -413,9 +413,9 @@ veq::Result<std::vector<double>> log_metal_fraction(const Curve& curve,
   std::vector<double> node_ml(nodes), node_value(nodes);
   chemistry::Speciation work, previous;
   for (std::size_t k = 0; k < nodes; ++k) {
-    node_ml[k] = nodes > 1 ? first + (last - first) * static_cast<double>(k) /
-                                         static_cast<double>(nodes - 1)
-                           : first;
+    node_ml[k] =
+        nodes > 1 ? first + (last - first) * static_cast<double>(k) / static_cast<double>(nodes - 1)
+                  : first;
     auto solved = model->solve_at(node_ml[k], work, k > 0 ? &previous : nullptr);
     if (!solved)
       return solved.error();

@@ -121,10 +121,10 @@ double noise_sd(std::span<const double> volume_ml, std::span<const double> signa
   // Iteratively trimmed mean square: residuals beyond 3 sigma of the current
   // estimate (a break, a spike, strong curvature) are left out and the
   // estimate is redone, until the variance settles within 1 % (0.5 % in
-  // sigma, ample for an uncertainty; typically three or four passes). The mean square of a Gaussian truncated at +-3 sigma is
-  // 0.97334 sigma^2 (1 - 2 c phi(c) / (2 Phi(c) - 1) with c = 3), which is
-  // divided out. A selection (median) would be as robust but several times
-  // slower, and this runs on every evaluation.
+  // sigma, ample for an uncertainty; typically three or four passes). The mean square of a Gaussian
+  // truncated at +-3 sigma is 0.97334 sigma^2 (1 - 2 c phi(c) / (2 Phi(c) - 1) with c = 3), which
+  // is divided out. A selection (median) would be as robust but several times slower, and this runs
+  // on every evaluation.
   double variance = sum / static_cast<double>(scratch.size());
   const std::size_t m = scratch.size();
   for (int iteration = 0; iteration < 30; ++iteration) {

@@ -74,8 +74,7 @@ class RunDatabase : public ::testing::Test {
       sample.titrant_conc_mol_per_l = s.titrant.label_conc_mol_per_l;
       controller::TitrationMethod method;
       method.max_volume_ml = 20.0;
-      const auto outcome =
-          controller::run_titration(instruments, **store, sample, method);
+      const auto outcome = controller::run_titration(instruments, **store, sample, method);
       if (i == 0)
         truth_ml_ = bench.true_equivalence_reading_ml();
       run_ids_[i] = outcome.run_id;
