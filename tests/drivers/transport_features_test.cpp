@@ -13,7 +13,6 @@
 #include <deque>
 #include <filesystem>
 #include <fstream>
-#include <regex>
 #include <sstream>
 #include <thread>
 
@@ -133,6 +132,30 @@ TEST(LineEnd, ATransportThatCannotChangeItSaysSo) {
 
 // ---- traffic log ----
 
+/// Whether an entry begins "YYYY-MM-DDTHH:MM:SS.ffffffZ +S.ffffff <line> ".
+/// (A hand check: std::regex trips GCC 12's uninitialised-use warning under
+/// the sanitizers.)
+bool stamped(const std::string& entry, const std::string& line) {
+  const std::string shape = "dddd-dd-ddTdd:dd:dd.ddddddZ +";
+  if (entry.size() < shape.size())
+    return false;
+  for (std::size_t i = 0; i < shape.size(); ++i) {
+    const bool digit = entry[i] >= '0' && entry[i] <= '9';
+    if (shape[i] == 'd' ? !digit : entry[i] != shape[i])
+      return false;
+  }
+  std::size_t i = shape.size();
+  const std::size_t whole = i;
+  while (i < entry.size() && entry[i] >= '0' && entry[i] <= '9')
+    ++i;
+  if (i == whole || i >= entry.size() || entry[i] != '.')
+    return false;
+  const std::size_t fraction = ++i;
+  while (i < entry.size() && entry[i] >= '0' && entry[i] <= '9')
+    ++i;
+  return i - fraction == 6 && entry.compare(i, line.size() + 2, " " + line + " ") == 0;
+}
+
 TEST(TrafficLog, EveryByteBothWaysWithTimestamps) {
   VirtualClock clock;
   EchoDevice device;
@@ -153,8 +176,7 @@ TEST(TrafficLog, EveryByteBothWaysWithTimestamps) {
   std::getline(in, received);
   std::getline(in, event);
   // 2026-03-04T10:15:30.123456Z +0.000012 memory:burette > ...
-  const std::regex stamp(R"(^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}Z \+\d+\.\d{6} memory:burette )");
-  EXPECT_TRUE(std::regex_search(sent, stamp)) << sent;
+  EXPECT_TRUE(stamped(sent, "memory:burette")) << sent;
   EXPECT_NE(sent.find(" > 1 status *A3D7\\n"), std::string::npos) << sent;
   // The received line is shown with the line end the transport frames on.
   EXPECT_NE(received.find(" < 1 ok\\n"), std::string::npos) << received;
