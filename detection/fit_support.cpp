@@ -4,7 +4,6 @@
 #include <cmath>
 
 #include "chemistry/conditional.hpp"
-#include "detection/local_fit.hpp"
 
 namespace veq::detection::fit_support {
 
@@ -25,27 +24,50 @@ double curve_temperature_c(const Curve& curve, double fallback_c) noexcept {
 }
 
 std::optional<std::size_t> steepest_fall(std::span<const double> volume_ml,
-                                         std::span<const double> y) {
+                                         std::span<const double> y, double factor) {
   const std::size_t n = y.size();
   if (n < 5)
     return std::nullopt;
-  std::vector<double> median(n);
-  median[0] = y[0];
-  median[n - 1] = y[n - 1];
-  for (std::size_t i = 1; i + 1 < n; ++i) {
+  // Running median of three, then the central difference over two steps.
+  auto median = [&](std::size_t i) {
+    if (i == 0 || i + 1 == n)
+      return y[i];
     const double a = y[i - 1], b = y[i], c = y[i + 1];
-    median[i] = std::max(std::min(a, b), std::min(std::max(a, b), c));
-  }
-  std::vector<double> slope;
-  local_fit::slopes(volume_ml, median, 5, slope);
+    return std::max(std::min(a, b), std::min(std::max(a, b), c));
+  };
   std::size_t best = 0;
-  for (std::size_t i = 1; i < n; ++i) {
-    if (slope[i] < slope[best])
+  double best_slope = 0.0;
+  double m_left = median(0), m_mid = median(1);
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    const double m_right = median(i + 1);
+    const double slope = factor * (m_right - m_left) / (volume_ml[i + 1] - volume_ml[i - 1]);
+    if (slope < best_slope) {
+      best_slope = slope;
       best = i;
+    }
+    m_left = m_mid;
+    m_mid = m_right;
   }
-  if (best == 0 || best + 1 == n || !(slope[best] < 0.0))
+  if (best == 0 || best + 1 == n)
     return std::nullopt;
   return best;
+}
+
+double noise_sd_median(std::span<const double> volume_ml, std::span<const double> signal) {
+  const std::size_t n = signal.size();
+  if (n < 3)
+    return 0.0;
+  std::vector<double> squares(n - 2);
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    const double hl = volume_ml[i] - volume_ml[i - 1];
+    const double hr = volume_ml[i + 1] - volume_ml[i];
+    const double span = hl + hr;
+    const double scaled = span * signal[i] - hr * signal[i - 1] - hl * signal[i + 1];
+    squares[i - 1] = scaled * scaled / (span * span + hl * hl + hr * hr);
+  }
+  const auto middle = squares.begin() + static_cast<std::ptrdiff_t>(squares.size() / 2);
+  std::nth_element(squares.begin(), middle, squares.end());
+  return std::sqrt(*middle / 0.4549);
 }
 
 Minimum minimise(const std::function<double(double)>& f, double lo, double hi, double tolerance,

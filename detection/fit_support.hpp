@@ -28,12 +28,22 @@ double nernst_slope_mv(double temperature_c, int charge) noexcept;
 double curve_temperature_c(const Curve& curve, double fallback_c) noexcept;
 
 /// Index of the steepest fall of `y` (y decreasing with volume through the
-/// break), from local quadratic slopes over 5 points of a 3-point running
-/// median of y, so that a single spike does not take the place of the break.
+/// break), from central differences of a 3-point running median of y, so
+/// that a single spike does not take the place of the break.
 /// Returns nothing when the steepest fall lies at either end of the curve
 /// (no break inside it).
+/// `factor` multiplies y first (-1: the steepest rise).
 std::optional<std::size_t> steepest_fall(std::span<const double> volume_ml,
-                                         std::span<const double> y);
+                                         std::span<const double> y, double factor = 1.0);
+
+/// Standard deviation of the signal noise, in signal units, from each
+/// interior point's distance to the straight line through its neighbours
+/// (scaled to one reading's noise, as local_fit::noise_sd does), taking the
+/// median of the squared distances over 0.4549, the median of chi-square
+/// with one degree of freedom: one pass and a selection, robust to a break
+/// and to spikes (which are a few points) without iterating. 0 for fewer
+/// than 3 points.
+double noise_sd_median(std::span<const double> volume_ml, std::span<const double> signal);
 
 /// Minimum of f on [lo, hi] by Brent's method (golden section with parabolic
 /// steps; R. P. Brent, Algorithms for Minimization without Derivatives,

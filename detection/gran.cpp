@@ -35,11 +35,13 @@ std::optional<GranSides> gran_sides_from_name(std::string_view name) {
 }
 
 nlohmann::json to_json(const GranOptions& options) {
-  nlohmann::json j = {{"slope_mv_per_decade", options.slope_mv_per_decade},
-                      {"sides", gran_sides_name(options.sides)},
-                      {"correct_metal_fraction", options.correct_metal_fraction},
-                      {"acceptance_sigma", options.acceptance_sigma},
-                      {"min_points_per_side", options.min_points_per_side}};
+  // Assigned one by one: cheaper than an initializer list, which copies.
+  nlohmann::json j;
+  j["slope_mv_per_decade"] = options.slope_mv_per_decade;
+  j["sides"] = gran_sides_name(options.sides);
+  j["correct_metal_fraction"] = options.correct_metal_fraction;
+  j["acceptance_sigma"] = options.acceptance_sigma;
+  j["min_points_per_side"] = options.min_points_per_side;
   if (options.sample)
     j["sample"] = chemistry::to_json(*options.sample);
   return j;
@@ -140,6 +142,8 @@ class RelativeLine {
   }
   double a() const { return a_; }
   double b() const { return b_; }
+  // Sum of squared residuals at the solution.
+  double sse() const { return m_ - a_ * sp_ - b_ * sq_; }
   double residual(double v, double h) const { return 1.0 - (a_ + b_ * (v - centre_)) * h; }
   // [h, x h] M^-1 [h, x h]^T: the fitted value's variance per unit variance.
   double leverage(double v, double h) const {
@@ -170,81 +174,71 @@ class RelativeLine {
   double det_ = 0.0, a_ = 0.0, b_ = 0.0;
 };
 
-// One side's Gran function at every point of the side: ln G_i, and the
-// points ordered from the outer end of the curve towards the break.
+// The points of one side, ordered from the outer end of the curve towards
+// the break.
 struct Side {
   bool before = true;
-  std::vector<std::size_t> order;  // indices into the curve, outer end first
+  std::vector<std::size_t> order;
 };
 
 struct SideFit {
   bool ok = false;
-  std::vector<std::size_t> used;     // indices in the fit, outer end first
+  std::vector<std::size_t> used;     // curve indices in the fit, outer end first
   std::vector<std::size_t> skipped;  // single points turned away (spikes)
   double zero_ml = 0.0;
   double zero_variance_factor = 0.0;
   double sse = 0.0;                       // sum of squared relative residuals
   double residual_var = 0.0;              // sse / (m - 2)
-  double a = 0.0, b = 0.0, centre = 0.0;  // G / exp(ref) = a + b (V - centre)
-  double ref = 0.0;                       // ln G reference of h
+  double a = 0.0, b = 0.0, centre = 0.0;  // 1/h = a + b (V - centre) on the line
 };
 
-// The Gran function's logarithm at curve point i for slope s (signal units
-// per decade, signed): before: ln(V0 + V) + ln(10) (E - Eref) / s + ln alpha;
-// after: -ln(10) (E - Eref) / s.
-struct GranFunction {
-  const std::vector<double>* volume_ml = nullptr;
-  const std::vector<double>* signal = nullptr;
-  double reference = 0.0;                          // Eref
-  double sample_volume_ml = 0.0;                   // 0: no dilution factor
-  const std::vector<double>* log_alpha = nullptr;  // ln alpha_M, or null
+// The Gran functions as reciprocals h = 1/G at every point of the curve for
+// one slope s (signal units per decade, signed), relative to the signal at
+// the break (so that neither over- nor underflows):
+//   before: G = (V0 + V) alpha_M 10^((E - Eref)/s),  after: G = 10^(-(E - Eref)/s).
+// The regressions work on h (relative residuals 1 - G_line h).
+struct GranFunctions {
+  std::vector<double> z;         // ln(10) (E - Eref)
+  std::vector<double> dilution;  // 1 / ((V0 + V) alpha_M): the before function's factor, inverted
+  std::vector<double> h_before, h_after;
 
-  double ln_g(std::size_t i, bool before, double slope) const {
-    const double y = kLn10 * ((*signal)[i] - reference) / slope;
-    if (!before)
-      return -y;
-    double g = y;
-    if (sample_volume_ml > 0.0)
-      g += std::log(sample_volume_ml + (*volume_ml)[i]);
-    if (log_alpha)
-      g += (*log_alpha)[i];
-    return g;
+  // One exponential per point: h_after = 10^((E - Eref)/s), h_before =
+  // dilution / h_after.
+  void reciprocals(double slope) {
+    const std::size_t n = z.size();
+    h_before.resize(n);
+    h_after.resize(n);
+    const double inverse = 1.0 / slope;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double after = std::exp(z[i] * inverse);
+      h_after[i] = after;
+      h_before[i] = dilution[i] / after;
+    }
+  }
+  double reciprocal(std::size_t i, bool before, double slope) const {
+    const double after = std::exp(z[i] / slope);
+    return before ? dilution[i] / after : after;
   }
 };
 
-// Regression over a fixed set of points with the centre at the weighted mean
-// (two passes, well conditioned), residuals summed explicitly.
-SideFit regress(const GranFunction& f, bool before, double slope,
-                const std::vector<std::size_t>& used) {
+// Least squares over a fixed set of points, in one pass: centred at the
+// innermost point (the heaviest points lie next to it, so the normal
+// equations stay well conditioned), the residual sum of squares from the
+// sums (m - a sum p - b sum q at the solution; it keeps ten digits or more
+// at the noise levels met, and is only compared with the noise).
+SideFit regress(const std::vector<double>& v, const std::vector<double>& h,
+                std::vector<std::size_t> used_points) {
   SideFit fit;
-  fit.used = used;
+  fit.used = std::move(used_points);
+  const std::vector<std::size_t>& used = fit.used;
   if (used.size() < 3)
     return fit;
-  const auto& v = *f.volume_ml;
-  std::vector<double> lg(used.size());
-  double ref = -INFINITY;
-  for (std::size_t k = 0; k < used.size(); ++k) {
-    lg[k] = f.ln_g(used[k], before, slope);
-    ref = std::max(ref, lg[k]);
-  }
-  // Centre at the h^2-weighted mean volume: near the break, where h is largest.
-  double sw = 0.0, swv = 0.0;
-  std::vector<double> h(used.size());
-  for (std::size_t k = 0; k < used.size(); ++k) {
-    h[k] = std::exp(ref - lg[k]);
-    sw += h[k] * h[k];
-    swv += h[k] * h[k] * v[used[k]];
-  }
-  RelativeLine line(swv / sw);
-  for (std::size_t k = 0; k < used.size(); ++k)
-    line.add(v[used[k]], h[k]);
+  RelativeLine line(v[used.back()]);
+  for (std::size_t i : used)
+    line.add(v[i], h[i]);
   if (!line.solve() || !(line.b() != 0.0))
     return fit;
-  double sse = 0.0;
-  for (std::size_t k = 0; k < used.size(); ++k) {
-    const double r = line.residual(v[used[k]], h[k]);
-    sse += r * r;
-  }
+  const double sse = std::max(0.0, line.sse());
   fit.ok = std::isfinite(line.zero_ml());
   fit.zero_ml = line.zero_ml();
   fit.zero_variance_factor = line.zero_variance_factor();
@@ -253,43 +247,36 @@ SideFit regress(const GranFunction& f, bool before, double slope,
   fit.a = line.a();
   fit.b = line.b();
   fit.centre = line.centre();
-  fit.ref = ref;
   return fit;
 }
 
 // Chooses the straight part of one side and fits it (see find_endpoints_by_gran).
-SideFit select_and_fit(const GranFunction& f, const Side& side, double slope, double sigma_r,
-                       double acceptance) {
-  const auto& v = *f.volume_ml;
+SideFit select_and_fit(const std::vector<double>& v, const std::vector<double>& h, const Side& side,
+                       double sigma_r, double acceptance) {
   const std::size_t count = side.order.size();
-  SideFit none;
   if (count < 3)
-    return none;
-  std::vector<double> lg(count);
-  double ref = -INFINITY;
-  for (std::size_t k = 0; k < count; ++k) {
-    lg[k] = f.ln_g(side.order[k], side.before, slope);
-    ref = std::max(ref, lg[k]);
-  }
-  auto h = [&](std::size_t k) { return std::exp(ref - lg[k]); };
-  RelativeLine line(v[side.order.back()]);
-  std::vector<std::size_t> used;  // positions in side.order
-  std::vector<std::size_t> skipped;
+    return {};
+  const auto& order = side.order;
+  RelativeLine line(v[order.back()]);
+  std::vector<std::size_t> used;  // positions in order
+  used.reserve(count);
+  std::vector<std::size_t> skipped, missed;
   const std::size_t seed =
       std::clamp<std::size_t>((count + 1) / 2, std::min<std::size_t>(3, count), count);
   for (std::size_t k = 0; k < seed; ++k) {
-    line.add(v[side.order[k]], h(k));
+    line.add(v[order[k]], h[order[k]]);
     used.push_back(k);
   }
   if (!line.solve())
-    return none;
+    return {};
   // Spikes in the seed: drop the worst point while it lies beyond five noise
   // standard deviations (a Gaussian reading does so once in 3.5 million).
   for (std::size_t round = 0; round < seed / 4 && used.size() > 3; ++round) {
     std::size_t worst = 0;
     double worst_r = 0.0;
     for (std::size_t u = 0; u < used.size(); ++u) {
-      const double r = std::abs(line.residual(v[side.order[used[u]]], h(used[u])));
+      const std::size_t i = order[used[u]];
+      const double r = std::abs(line.residual(v[i], h[i]));
       if (r > worst_r) {
         worst_r = r;
         worst = u;
@@ -297,29 +284,29 @@ SideFit select_and_fit(const GranFunction& f, const Side& side, double slope, do
     }
     if (worst_r <= 5.0 * sigma_r)
       break;
-    line.remove(v[side.order[used[worst]]], h(used[worst]));
+    line.remove(v[order[used[worst]]], h[order[used[worst]]]);
     skipped.push_back(used[worst]);
     used.erase(used.begin() + static_cast<std::ptrdiff_t>(worst));
     if (!line.solve())
-      return none;
+      return {};
   }
   // Grow towards the break.
   int misses = 0;
-  std::vector<std::size_t> missed;
   for (std::size_t k = seed; k < count; ++k) {
-    const double x = v[side.order[k]];
-    const double hk = h(k);
-    const double r = line.residual(x, hk);
-    const double limit = acceptance * sigma_r * std::sqrt(1.0 + line.leverage(x, hk));
-    if (std::abs(r) <= limit) {
-      for (std::size_t m : missed)
-        skipped.push_back(m);
+    const double x = v[order[k]];
+    const double hk = h[order[k]];
+    const double r = std::abs(line.residual(x, hk));
+    // The leverage only widens the limit: skip it when the point is inside
+    // anyway.
+    const double narrow = acceptance * sigma_r;
+    if (r <= narrow || r <= narrow * std::sqrt(1.0 + line.leverage(x, hk))) {
+      skipped.insert(skipped.end(), missed.begin(), missed.end());
       missed.clear();
       misses = 0;
       line.add(x, hk);
       used.push_back(k);
       if (!line.solve())
-        return none;
+        return {};
     } else {
       // Three misses in a row end the line (noise alone does that about
       // once in 50 million points); fewer are single bad readings, skipped.
@@ -336,23 +323,86 @@ SideFit select_and_fit(const GranFunction& f, const Side& side, double slope, do
     const std::size_t run = std::max<std::size_t>(3, used.size() / 10);
     double mean = 0.0;
     for (std::size_t u = used.size() - run; u < used.size(); ++u)
-      mean += line.residual(v[side.order[used[u]]], h(used[u]));
+      mean += line.residual(v[order[used[u]]], h[order[used[u]]]);
     mean /= static_cast<double>(run);
     if (std::abs(mean) <= acceptance * sigma_r / std::sqrt(static_cast<double>(run)))
       break;
-    line.remove(v[side.order[used.back()]], h(used.back()));
+    line.remove(v[order[used.back()]], h[order[used.back()]]);
     used.pop_back();
     if (!line.solve())
-      return none;
+      return {};
   }
-  std::vector<std::size_t> indices;
-  for (std::size_t u : used)
-    indices.push_back(side.order[u]);
-  SideFit fit = regress(f, side.before, slope, indices);
+  for (std::size_t& u : used)
+    u = order[u];
+  SideFit fit = regress(v, h, std::move(used));
   for (std::size_t s : skipped)
-    fit.skipped.push_back(side.order[s]);
+    fit.skipped.push_back(order[s]);
   std::sort(fit.skipped.begin(), fit.skipped.end());
   return fit;
+}
+
+// One Gauss-Newton step for the electrode slope s, with both lines
+// re-fitted at s (variable projection: a, b are solved exactly, so the step
+// uses the Schur complement of their block). Residuals in signal units,
+// rho = (s / ln 10) (1 - (a + b x) h(s)): with h_after = exp(z/s) and
+// h_before = dilution exp(-z/s), dh/ds = -/+ h z / s^2.
+struct SlopeStep {
+  double step = 0.0;   // change of s
+  double schur = 0.0;  // J^T J for s with the lines projected out
+  double q = 0.0;      // sum of squared residuals, signal units
+};
+
+SlopeStep slope_step(const std::vector<double>& v, const GranFunctions& f, double s,
+                     const std::vector<std::size_t>& before_used,
+                     const std::vector<std::size_t>& after_used, std::vector<double>& h,
+                     std::vector<double>& dh) {
+  SlopeStep out;
+  double gradient = 0.0;
+  const double k = s / kLn10;
+  for (const auto& [used, before] :
+       {std::pair{&before_used, true}, std::pair{&after_used, false}}) {
+    if (used->size() < 3)
+      continue;
+    // h and dh/ds at s, and the line through them.
+    const double centre = v[used->back()];
+    RelativeLine line(centre);
+    h.resize(used->size());
+    dh.resize(used->size());
+    for (std::size_t u = 0; u < used->size(); ++u) {
+      const std::size_t i = (*used)[u];
+      h[u] = f.reciprocal(i, before, s);
+      dh[u] = (before ? 1.0 : -1.0) * h[u] * f.z[i] / (s * s);
+      line.add(v[i], h[u]);
+    }
+    if (!line.solve())
+      continue;
+    double aa = 0.0, ab = 0.0, bb = 0.0, ca = 0.0, cb = 0.0, d = 0.0, g = 0.0;
+    for (std::size_t u = 0; u < used->size(); ++u) {
+      const double x = v[(*used)[u]] - centre;
+      const double fitted = line.a() + line.b() * x;
+      const double r = 1.0 - fitted * h[u];
+      const double rho = k * r;
+      const double wa = -k * h[u], wb = -k * x * h[u];
+      const double ws = r / kLn10 - k * fitted * dh[u];
+      aa += wa * wa;
+      ab += wa * wb;
+      bb += wb * wb;
+      ca += wa * ws;
+      cb += wb * ws;
+      d += ws * ws;
+      g -= ws * rho;
+      out.q += rho * rho;
+    }
+    // c^T A^-1 c for the 2x2 block A = [[aa, ab], [ab, bb]].
+    const double det = aa * bb - ab * ab;
+    if (det > 0.0)
+      d -= (bb * ca * ca - 2.0 * ab * ca * cb + aa * cb * cb) / det;
+    out.schur += d;
+    gradient += g;
+  }
+  if (out.schur > 0.0)
+    out.step = gradient / out.schur;
+  return out;
 }
 
 struct Combined {
@@ -362,15 +412,16 @@ struct Combined {
   double chi2 = 0.0;      // of the two zeros against each other
 };
 
+double zero_variance(const SideFit& s, double sigma_r2) {
+  return std::max(s.residual_var, sigma_r2) * s.zero_variance_factor;
+}
+
 Combined combine(const SideFit* before, const SideFit* after, double sigma_r2) {
-  auto variance = [&](const SideFit& s) {
-    return std::max(s.residual_var, sigma_r2) * s.zero_variance_factor;
-  };
   Combined c;
   const bool b_ok = before && before->ok;
   const bool a_ok = after && after->ok;
   if (b_ok && a_ok) {
-    const double u1 = variance(*before), u2 = variance(*after);
+    const double u1 = zero_variance(*before, sigma_r2), u2 = zero_variance(*after, sigma_r2);
     const double w1 = 1.0 / u1, w2 = 1.0 / u2;
     c.volume_ml = (w1 * before->zero_ml + w2 * after->zero_ml) / (w1 + w2);
     c.variance = 1.0 / (w1 + w2);
@@ -380,7 +431,7 @@ Combined combine(const SideFit* before, const SideFit* after, double sigma_r2) {
   } else if (b_ok || a_ok) {
     const SideFit& s = b_ok ? *before : *after;
     c.volume_ml = s.zero_ml;
-    c.variance = variance(s);
+    c.variance = zero_variance(s, sigma_r2);
     c.ok = true;
   }
   return c;
@@ -490,16 +541,15 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
 
   const std::vector<double>& v = curve.volume_ml();
   const std::size_t n = v.size();
-  // The signal as log10 of the metal concentration times the slope: E for a
+  // The signal as the slope times log10 of the metal concentration: E for a
   // potential, -pM for pM (slope 1).
-  std::vector<double> e;
-  if (potential) {
-    e = curve.signal();
-  } else {
-    e.resize(n);
+  std::vector<double> negated;
+  if (!potential) {
+    negated.resize(n);
     for (std::size_t i = 0; i < n; ++i)
-      e[i] = -curve.signal()[i];
+      negated[i] = -curve.signal()[i];
   }
+  const std::vector<double>& e = potential ? curve.signal() : negated;
   const int charge = chem ? chem->metal_charge : 2;
   const double temperature_c = fit_support::curve_temperature_c(
       curve, options.sample ? options.sample->signal.temperature_c : 25.0);
@@ -518,12 +568,8 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
       sign *
       (potential && options.slope_mv_per_decade > 0.0 ? options.slope_mv_per_decade : nernst);
 
-  std::vector<double> scratch;
-  const double sigma_e = local_fit::noise_sd(v, e, scratch);
-  std::vector<double> y(n);
-  for (std::size_t i = 0; i < n; ++i)
-    y[i] = e[i] / slope;
-  const auto steepest = fit_support::steepest_fall(v, y);
+  const double sigma_e = fit_support::noise_sd_median(v, e);
+  const auto steepest = fit_support::steepest_fall(v, e, sign);
   if (!steepest) {
     result.flags.push_back(QualityFlag::no_endpoint);
     return result;
@@ -535,21 +581,38 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   // curves (computed ones) so that the acceptance tests stay finite.
   auto sigma_r_of = [&](double s) { return std::max(kLn10 * sigma_e / std::abs(s), 1e-7); };
 
+  GranFunctions f;
+  f.z.resize(n);
+  f.dilution.resize(n);
+  for (std::size_t i = 0; i < n; ++i) {
+    f.z[i] = kLn10 * (e[i] - reference);
+    f.dilution[i] = sample_volume_ml > 0.0 ? 1.0 / (sample_volume_ml + v[i]) : 1.0;
+  }
   std::vector<double> log_alpha;
   double alpha_for_ml = 0.0;  // equivalence volume the fractions were computed for
-  GranFunction f{&v, &e, reference, sample_volume_ml, nullptr};
+  auto set_alpha = [&](const std::vector<double>& la) {
+    for (std::size_t i = 0; i < n; ++i)
+      f.dilution[i] =
+          (sample_volume_ml > 0.0 ? 1.0 / (sample_volume_ml + v[i]) : 1.0) * std::exp(-la[i]);
+  };
+  f.reciprocals(slope);
 
+  // The two sides' points for a split volume, into reused vectors.
+  Side before_side{true, {}}, after_side{false, {}};
+  before_side.order.reserve(n);
+  after_side.order.reserve(n);
   auto make_sides = [&](double at) {
-    Side before{true, {}}, after{false, {}};
-    for (std::size_t i = 0; i < n; ++i) {
-      if (v[i] < at)
-        before.order.push_back(i);
-    }
-    for (std::size_t i = n; i-- > 0;) {
-      if (v[i] > at)
-        after.order.push_back(i);
-    }
-    return std::pair{before, after};
+    // Volumes increase: the sides are the points below and above `at`.
+    const auto first_after =
+        static_cast<std::size_t>(std::upper_bound(v.begin(), v.end(), at) - v.begin());
+    const auto end_before =
+        static_cast<std::size_t>(std::lower_bound(v.begin(), v.end(), at) - v.begin());
+    before_side.order.resize(end_before);
+    for (std::size_t i = 0; i < end_before; ++i)
+      before_side.order[i] = i;
+    after_side.order.resize(n - first_after);
+    for (std::size_t k = 0; k < n - first_after; ++k)
+      after_side.order[k] = n - 1 - k;
   };
   const bool use_before = options.sides != GranSides::after;
   const bool use_after = options.sides != GranSides::before;
@@ -560,24 +623,57 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   bool slope_at_limit = false;
   const double slope_lo = 0.5 * nernst, slope_hi = 1.25 * nernst;
   double previous_b1 = 0.0, previous_b2 = 0.0, previous_volume = 0.0;
-  for (int pass = 0; pass < 5; ++pass) {
-    if (library_needed) {
-      const double target = combined.ok ? combined.volume_ml : 0.0;
-      const bool stale =
-          log_alpha.empty() || (target > 0.0 && std::abs(target - alpha_for_ml) > 0.01 * target);
-      if (stale) {
-        auto la = log_metal_fraction(curve, *chem, library, target);
-        if (!la)
-          return la.error();
-        log_alpha = std::move(*la);
-        alpha_for_ml = target > 0.0
-                           ? target
-                           : chem->sample.metals[chem->signal_metal].conc_mol_per_l *
-                                 chem->sample_volume_ml / chem->sample.titrant.conc_mol_per_l;
-        f.log_alpha = &log_alpha;
-      }
+  double slope_schur = 0.0, slope_q = 0.0;    // of the slope's last Gauss-Newton step
+  std::vector<double> scratch_h, scratch_dh;  // for the slope's steps
+  // The metal fraction for an equivalence volume (0: the sample's nominal
+  // one); true when it was (re)computed.
+  auto refresh_alpha = [&](double target) -> veq::Result<bool> {
+    if (!library_needed)
+      return false;
+    const bool stale =
+        log_alpha.empty() || (target > 0.0 && std::abs(target - alpha_for_ml) > 0.01 * target);
+    if (!stale)
+      return false;
+    auto la = log_metal_fraction(curve, *chem, library, target);
+    if (!la)
+      return la.error();
+    log_alpha = std::move(*la);
+    alpha_for_ml = target > 0.0 ? target
+                                : chem->sample.metals[chem->signal_metal].conc_mol_per_l *
+                                      chem->sample_volume_ml / chem->sample.titrant.conc_mol_per_l;
+    set_alpha(log_alpha);
+    f.reciprocals(slope);
+    return true;
+  };
+  if (auto first = refresh_alpha(0.0); !first)
+    return first.error();
+  // First estimate of both lines from the outer half of each side (far
+  // from the break, no selection needed): the slopes and the zero that the
+  // exclusion of the incomplete region below starts from.
+  {
+    make_sides(split);
+    auto outer = [&](const Side& side, const std::vector<double>& h) {
+      std::vector<std::size_t> half(
+          side.order.begin(),
+          side.order.begin() + static_cast<std::ptrdiff_t>((side.order.size() + 1) / 2));
+      return regress(v, h, std::move(half));
+    };
+    const SideFit b = outer(before_side, f.h_before), a = outer(after_side, f.h_after);
+    const Combined c = combine(&b, &a, sigma_r_of(slope) * sigma_r_of(slope));
+    if (c.ok && b.ok && a.ok && b.b < 0.0 && a.b > 0.0) {
+      previous_b1 = -b.b;
+      previous_b2 = a.b;
+      previous_volume = c.volume_ml;
     }
-    auto [before_side, after_side] = make_sides(split);
+  }
+  std::vector<std::size_t> last_before, last_after;
+  double slope_moved = 0.0;  // by the last pass's slope fit
+  for (int pass = 0; pass < 5; ++pass) {
+    auto refreshed = refresh_alpha(combined.ok ? combined.volume_ml : 0.0);
+    if (!refreshed)
+      return refreshed.error();
+    const bool alpha_changed = *refreshed;
+    make_sides(split);
     // Near the equivalence point the reaction is incomplete: before it the
     // function holds (V0 + V)([M'] - [Y']) instead of (V0 + V)[M'], after it
     // [M'] beside [Y']. The relative bend, delta = [Y']/[M'] before and
@@ -593,7 +689,7 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
     if (previous_b1 > 0.0 && previous_b2 > 0.0 && sample_volume_ml > 0.0) {
       const double limit = kIncompleteFraction * sigma_r_of(slope);
       const double ve = previous_volume;
-      auto alpha = [&](std::size_t i) { return f.log_alpha ? std::exp(log_alpha[i]) : 1.0; };
+      auto alpha = [&](std::size_t i) { return log_alpha.empty() ? 1.0 : std::exp(log_alpha[i]); };
       std::erase_if(before_side.order, [&](std::size_t i) {
         const double d = ve - v[i];
         return v[i] * (sample_volume_ml + v[i]) * alpha(i) >
@@ -604,60 +700,73 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
         return (sample_volume_ml + v[i]) * alpha(i) > limit * previous_b1 * previous_b2 * d * d;
       });
     }
-    auto fit_sides = [&](double s) {
-      const double sr = sigma_r_of(s);
-      before_fit = select_and_fit(f, before_side, s, sr, options.acceptance_sigma);
-      after_fit = select_and_fit(f, after_side, s, sr, options.acceptance_sigma);
+    // Settled when the points on offer are those of the last pass, with the
+    // same slope and metal fractions: the selection would repeat itself.
+    if (pass > 0 && !alpha_changed && before_side.order == last_before &&
+        after_side.order == last_after && slope_moved <= 1e-4 * nernst)
+      break;
+    last_before = before_side.order;
+    last_after = after_side.order;
+    auto fit_sides = [&]() {
+      const double sr = sigma_r_of(slope);
+      before_fit = select_and_fit(v, f.h_before, before_side, sr, options.acceptance_sigma);
+      after_fit = select_and_fit(v, f.h_after, after_side, sr, options.acceptance_sigma);
     };
-    fit_sides(slope);
+    fit_sides();
     if (fit_slope) {
       // Slope that makes both functions straightest: least squares in signal
-      // units, (S / ln 10)^2 times the relative residuals, over the ranges
-      // just chosen.
-      const auto b_used = before_fit.used;
-      const auto a_used = after_fit.used;
-      auto objective = [&](double s) {
-        double q = 0.0;
-        if (before_fit.ok)
-          q += regress(f, true, s, b_used).sse;
-        if (after_fit.ok)
-          q += regress(f, false, s, a_used).sse;
-        return q * (s / kLn10) * (s / kLn10);
-      };
-      const auto best =
-          fit_support::minimise([&](double magnitude) { return objective(sign * magnitude); },
-                                slope_lo, slope_hi, 1e-5 * nernst);
-      slope = sign * best.x;
-      slope_at_limit = best.x < slope_lo * 1.001 || best.x > slope_hi * 0.999;
-      fit_sides(slope);
+      // units over the ranges just chosen, by Gauss-Newton steps (clamped to
+      // 50-125 % of the Nernst slope; a step that does not lower the sum of
+      // squares is halved).
+      const double start = slope;
+      SlopeStep step =
+          slope_step(v, f, slope, before_fit.used, after_fit.used, scratch_h, scratch_dh);
+      for (int iteration = 0; iteration < 12 && step.schur > 0.0; ++iteration) {
+        double next = sign * std::clamp(sign * (slope + step.step), slope_lo, slope_hi);
+        SlopeStep trial =
+            slope_step(v, f, next, before_fit.used, after_fit.used, scratch_h, scratch_dh);
+        for (int halving = 0; halving < 20 && trial.q > step.q; ++halving) {
+          next = 0.5 * (slope + next);
+          trial = slope_step(v, f, next, before_fit.used, after_fit.used, scratch_h, scratch_dh);
+        }
+        const double moved = std::abs(next - slope);
+        slope = next;
+        step = trial;
+        if (moved <= 1e-6 * nernst)
+          break;
+      }
+      slope_schur = step.schur;
+      slope_q = step.q;
+      slope_at_limit = std::abs(slope) < slope_lo * 1.001 || std::abs(slope) > slope_hi * 0.999;
+      slope_moved = std::abs(slope - start);
+      if (slope_moved > 1e-6 * nernst) {
+        f.reciprocals(slope);
+        fit_sides();
+      }
     }
     combined = combine(use_before ? &before_fit : nullptr, use_after ? &after_fit : nullptr,
                        sigma_r_of(slope) * sigma_r_of(slope));
     if (!combined.ok)
       break;
-    previous_b1 =
-        before_fit.ok && before_fit.b < 0.0 ? -before_fit.b * std::exp(before_fit.ref) : 0.0;
-    previous_b2 = after_fit.ok && after_fit.b > 0.0 ? after_fit.b * std::exp(after_fit.ref) : 0.0;
-    const double moved = std::abs(combined.volume_ml - previous_volume);
+    if (before_fit.ok && before_fit.b < 0.0 && after_fit.ok && after_fit.b > 0.0) {
+      previous_b1 = -before_fit.b;
+      previous_b2 = after_fit.b;
+    }
     previous_volume = combined.volume_ml;
-    const bool alpha_settled =
-        !library_needed || std::abs(combined.volume_ml - alpha_for_ml) <= 0.01 * combined.volume_ml;
     split = std::clamp(combined.volume_ml, v.front(), v.back());
-    if (pass > 0 && moved <= 1e-4 * std::max(combined.volume_ml, 1e-9) && alpha_settled)
-      break;
   }
 
   // The slope's own uncertainty, propagated (ranges fixed).
   if (combined.ok && fit_slope) {
-    const auto b_used = before_fit.used;
-    const auto a_used = after_fit.used;
     const double sr2 = sigma_r_of(slope) * sigma_r_of(slope);
+    std::vector<double> hb(n), ha(n);
     auto at = [&](double s) {
-      SideFit bf, af;
-      if (before_fit.ok)
-        bf = regress(f, true, s, b_used);
-      if (after_fit.ok)
-        af = regress(f, false, s, a_used);
+      for (std::size_t i : before_fit.used)
+        hb[i] = f.reciprocal(i, true, s);
+      for (std::size_t i : after_fit.used)
+        ha[i] = f.reciprocal(i, false, s);
+      SideFit bf = before_fit.ok ? regress(v, hb, before_fit.used) : SideFit{};
+      SideFit af = after_fit.ok ? regress(v, ha, after_fit.used) : SideFit{};
       double q = (bf.ok ? bf.sse : 0.0) + (af.ok ? af.sse : 0.0);
       q *= (s / kLn10) * (s / kLn10);
       const Combined c =
@@ -666,94 +775,97 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
       return std::array<double, 3>{q, c.volume_ml, difference};
     };
     const double h = 0.01 * std::abs(slope);
-    const auto mid = at(slope);
     const auto up = at(slope + h);
     const auto down = at(slope - h);
-    const double q0 = mid[0];
-    const double curvature = (up[0] - 2.0 * q0 + down[0]) / (h * h);
     const double points = static_cast<double>((before_fit.ok ? before_fit.used.size() : 0) +
                                               (after_fit.ok ? after_fit.used.size() : 0));
     const double dof = std::max(1.0, points - 5.0);
-    const double signal_var = std::max(q0 / dof, sigma_e * sigma_e);
-    if (curvature > 0.0)
-      slope_variance = 2.0 * signal_var / curvature;
+    const double signal_var = std::max(slope_q / dof, sigma_e * sigma_e);
+    // Gauss-Newton: var(S) = s^2 / (J^T J) with the lines projected out.
+    if (slope_schur > 0.0)
+      slope_variance = signal_var / slope_schur;
     d_volume_d_slope = (up[1] - down[1]) / (2.0 * h);
     d_difference_d_slope = (up[2] - down[2]) / (2.0 * h);
   }
 
-  nlohmann::json details;
-  details["slope_mv_per_decade"] = potential ? nlohmann::json(slope) : nlohmann::json(nullptr);
+  const double sr2 = sigma_r_of(slope) * sigma_r_of(slope);
+  nlohmann::json& details = result.details;
+  if (potential) {
+    details["slope_mv_per_decade"] = slope;
+    details["nernst_slope_mv_per_decade"] = nernst;
+  }
   details["slope_fitted"] = fit_slope;
   if (fit_slope) {
     details["slope_uncertainty_mv_per_decade"] = std::sqrt(slope_variance);
     details["slope_percent_of_nernst"] = 100.0 * std::abs(slope) / nernst;
   }
-  if (potential)
-    details["nernst_slope_mv_per_decade"] = nernst;
   details["noise_sd"] = sigma_e;
   details["metal_fraction_corrected"] = library_needed;
-  auto side_details = [&](const SideFit& s) {
-    nlohmann::json j;
-    if (!s.ok || s.used.empty())
-      return nlohmann::json(nullptr);
-    const double sr2 = sigma_r_of(slope) * sigma_r_of(slope);
+  auto side_details = [&](const SideFit& s, nlohmann::json& j) {
+    if (!s.ok || s.used.empty()) {
+      j = nullptr;
+      return;
+    }
+    // The line in the function's own units, G = intercept + slope_per_ml V:
+    // before, G = (V0 + V) alpha_M 10^((E - Eref)/S) (for pM curves
+    // (V0 + V) 10^-(pM - pM_ref), so that 10^-pM_ref times the slope is minus
+    // the titrant concentration); after, G = 10^(-(E - Eref)/S).
+    const double v_first = v[s.used.front()], v_last = v[s.used.back()];
     j["zero_ml"] = s.zero_ml;
-    j["uncertainty_ml"] = std::sqrt(std::max(s.residual_var, sr2) * s.zero_variance_factor);
-    j["range_ml"] = {v[s.used.front()], v[s.used.back()]};
+    j["uncertainty_ml"] = std::sqrt(zero_variance(s, sr2));
+    j["range_ml"] = {std::min(v_first, v_last), std::max(v_first, v_last)};
     j["points"] = s.used.size();
     j["skipped_points"] = s.skipped.size();
-    // The line in the function's own units: G = intercept + slope_per_ml V,
-    // with G = (V0 + V) 10^((E - Eref)/S) alpha_M before (mL; for pM curves
-    // (V0 + V) [M] in mmol, so that the slope is minus the titrant
-    // concentration) and 10^(-(E - Eref)/S) after.
-    const double scale = std::exp(s.ref);
-    j["line_slope_per_ml"] = s.b * scale;
-    j["line_intercept"] = (s.a - s.b * s.centre) * scale;
-    j["relative_residual_sd"] = std::sqrt(s.residual_var);
-    return j;
+    j["line_slope_per_ml"] = s.b;
+    j["line_intercept"] = s.a - s.b * s.centre;
   };
   // Both lines are fitted whichever gives the endpoint: each one's slope
   // tells the other where the incomplete reaction begins.
-  details["before"] = side_details(before_fit);
-  details["after"] = side_details(after_fit);
+  side_details(before_fit, details["before"]);
+  side_details(after_fit, details["after"]);
   details["sides_used"] = gran_sides_name(options.sides);
   details["reference_signal"] = potential ? reference : -reference;
 
   // Diagnostics: each function scaled to mL of titrant (its line then reads
   // Ve - V before and V - Ve after), the fitted lines, the points turned
   // away, and the metal fraction used.
-  auto add_series = [&](const Side& side, const SideFit& s, const char* name,
-                        const char* line_name) {
+  make_sides(split);
+  const Side& final_before_side = before_side;
+  const Side& final_after_side = after_side;
+  auto add_series = [&](const Side& side, const SideFit& s, const std::vector<double>& h,
+                        const char* name, const char* line_name) {
     if (!s.ok)
       return;
     const double scale = std::abs(s.b);
-    std::vector<std::pair<double, double>> xy;
-    for (std::size_t i : side.order)
-      xy.emplace_back(v[i], std::exp(f.ln_g(i, side.before, slope) - s.ref) / scale);
-    std::sort(xy.begin(), xy.end());
     DiagnosticSeries points{name, "mL", {}, {}};
-    for (const auto& [x, g] : xy) {
-      points.x_ml.push_back(x);
-      points.y.push_back(g);
+    points.x_ml.reserve(side.order.size());
+    points.y.reserve(side.order.size());
+    for (std::size_t i : side.order) {
+      points.x_ml.push_back(v[i]);
+      points.y.push_back(1.0 / (h[i] * scale));
+    }
+    if (!side.before) {
+      std::reverse(points.x_ml.begin(), points.x_ml.end());
+      std::reverse(points.y.begin(), points.y.end());
     }
     result.diagnostics.series.push_back(std::move(points));
     const double outer = v[s.used.front()];
     const double at_outer = (s.a + s.b * (outer - s.centre)) / scale;
     result.diagnostics.series.push_back({line_name, "mL", {outer, s.zero_ml}, {at_outer, 0.0}});
   };
-  auto [final_before_side, final_after_side] = make_sides(split);
-  add_series(final_before_side, before_fit, "gran_before", "gran_before_line");
-  add_series(final_after_side, after_fit, "gran_after", "gran_after_line");
-  DiagnosticSeries skipped{"skipped_points", signal_kind_name(curve.kind()), {}, {}};
-  for (const SideFit* s : {&before_fit, &after_fit}) {
-    for (std::size_t i : s->skipped) {
-      skipped.x_ml.push_back(v[i]);
-      skipped.y.push_back(curve.signal()[i]);
+  add_series(final_before_side, before_fit, f.h_before, "gran_before", "gran_before_line");
+  add_series(final_after_side, after_fit, f.h_after, "gran_after", "gran_after_line");
+  if (!before_fit.skipped.empty() || !after_fit.skipped.empty()) {
+    DiagnosticSeries skipped{"skipped_points", signal_kind_name(curve.kind()), {}, {}};
+    for (const SideFit* s : {&before_fit, &after_fit}) {
+      for (std::size_t i : s->skipped) {
+        skipped.x_ml.push_back(v[i]);
+        skipped.y.push_back(curve.signal()[i]);
+      }
     }
-  }
-  if (!skipped.x_ml.empty())
     result.diagnostics.series.push_back(std::move(skipped));
-  if (f.log_alpha) {
+  }
+  if (!log_alpha.empty()) {
     DiagnosticSeries alpha{"log10_metal_side_reaction", "log10 alpha_M", {}, {}};
     for (std::size_t i : final_before_side.order) {
       alpha.x_ml.push_back(v[i]);
@@ -772,7 +884,6 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
     result.diagnostics.markers.push_back(
         {std::string(label) + " range end", MarkerAxis::volume, v[s->used.back()]});
   }
-  result.details = std::move(details);
 
   if (!combined.ok) {
     result.flags.push_back(QualityFlag::no_endpoint);
@@ -788,11 +899,9 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   if (fit_slope && before_fit.ok && after_fit.ok && use_before && use_after) {
     // The slope moves both zeros together; its part of their difference is
     // not a disagreement.
-    const double sr2 = sigma_r_of(slope) * sigma_r_of(slope);
     const double d = before_fit.zero_ml - after_fit.zero_ml;
     chi2 = d * d /
-           (std::max(before_fit.residual_var, sr2) * before_fit.zero_variance_factor +
-            std::max(after_fit.residual_var, sr2) * after_fit.zero_variance_factor +
+           (zero_variance(before_fit, sr2) + zero_variance(after_fit, sr2) +
             d_difference_d_slope * d_difference_d_slope * slope_variance);
   }
   if (chi2 > 1.0)
@@ -809,7 +918,6 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   endpoint.signal =
       signal[right - 1] + std::clamp(t, 0.0, 1.0) * (signal[right] - signal[right - 1]);
   endpoint.steepness = std::abs((signal[right] - signal[right - 1]) / (v[right] - v[right - 1]));
-  const double sr2 = sigma_r_of(slope) * sigma_r_of(slope);
   for (const auto& [s, wanted] :
        {std::pair{&before_fit, use_before}, std::pair{&after_fit, use_after}}) {
     if (!wanted)
