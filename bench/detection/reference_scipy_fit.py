@@ -205,8 +205,7 @@ def model_one_to_one(v, e, sample, log_k, log_alpha):
         return coef, float(((a @ coef - e) ** 2).sum())
 
     best = None
-    for ve, lk in [(steep, log_k), (0.97 * steep, log_k), (1.03 * steep, log_k), (0.9 * steep, log_k),
-                   (1.1 * steep, log_k), (nominal, log_k), (steep, log_k - 1.5), (steep, log_k + 1.5)]:
+    for ve, lk in [(steep, log_k), (nominal, log_k), (steep, log_k - 1.5), (steep, log_k + 1.5)]:
         p = [math.log(ve), lk]
         coef, sse = linear(log_m(p))
         if best is None or sse < best[0]:

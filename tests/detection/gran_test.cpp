@@ -15,14 +15,12 @@
 #include "detection/gran.hpp"
 #include "detection/trials.hpp"
 #include "tests/detection/synthetic.hpp"
+#include "tests/detection/trial_support.hpp"
 
 namespace veq::detection {
 namespace {
 
-const chemistry::ConstantsLibrary& library() {
-  static const chemistry::ConstantsLibrary lib = chemistry::builtin_constants_library().value();
-  return lib;
-}
+using testing::library;
 
 // D. C. Harris, Quantitative Chemical Analysis, 8th ed. (W. H. Freeman,
 // 2010), Section 11-4 "EDTA Titration Curves": 50.0 mL of 0.0400 M Ca2+ at
@@ -101,29 +99,22 @@ struct Stats {
   std::size_t found = 0;
 };
 
-// Gran over `seeds` curves of a built-in scenario (seeds 1..n).
-Stats run(const char* scenario_name, int seeds, nlohmann::json options = nlohmann::json::object(),
-          std::vector<double>* errors_percent = nullptr,
+// Gran over the 50 seeded curves of a built-in scenario.
+Stats run(const char* scenario_name, nlohmann::json options = nlohmann::json::object(),
           std::vector<double>* normalised = nullptr) {
-  auto scenario = builtin_trial_scenario(scenario_name).value();
-  options["sample"] = chemistry::to_json(scenario.sample);
+  const auto& outcomes = testing::trial_outcomes(scenario_name, "gran", options);
   std::vector<double> errors;
   std::size_t covered = 0;
-  for (int seed = 1; seed <= seeds; ++seed) {
-    auto c = simulate_trial_curve(scenario, static_cast<std::uint64_t>(seed), library());
-    EXPECT_TRUE(c) << c.error().message;
-    if (!c)
+  for (const auto& o : outcomes) {
+    EXPECT_TRUE(o.error.empty()) << o.error;
+    if (o.endpoint_ml.empty())
       continue;
-    auto ev = evaluate(c->curve, "gran", options, library());
-    EXPECT_TRUE(ev) << ev.error().message;
-    if (!ev || ev->endpoints.empty())
-      continue;
-    const double truth = c->equivalence_ml[0];
-    const double error = ev->endpoints[0].volume_ml - truth;
+    const double truth = o.equivalence_ml[0];
+    const double error = o.endpoint_ml[0] - truth;
     errors.push_back(100.0 * error / truth);
     if (normalised)
-      normalised->push_back(error / ev->endpoints[0].uncertainty_ml);
-    if (std::abs(error) <= 2.0 * ev->endpoints[0].uncertainty_ml)
+      normalised->push_back(error / o.uncertainty_ml[0]);
+    if (std::abs(error) <= 2.0 * o.uncertainty_ml[0])
       ++covered;
   }
   Stats s;
@@ -135,27 +126,24 @@ Stats run(const char* scenario_name, int seeds, nlohmann::json options = nlohman
   s.sd = st.sd;
   s.max_abs = st.max_abs;
   s.coverage = static_cast<double>(covered) / static_cast<double>(errors.size());
-  if (errors_percent)
-    errors_percent->insert(errors_percent->end(), errors.begin(), errors.end());
   std::printf("  %s %s: bias %.4f %%, sd %.4f %%, max |error| %.4f %%, within 2u %.0f %%\n",
-              scenario_name, options.contains("sides") ? options["sides"].dump().c_str() : "",
-              s.bias, s.sd, s.max_abs, 100.0 * s.coverage);
+              scenario_name, options.dump().c_str(), s.bias, s.sd, s.max_abs, 100.0 * s.coverage);
   return s;
 }
 
 TEST(GranMethod, StrongBreakFittedAndCalibratedSlope) {
   // Calcium at pH 10, 0.1 mV noise, 50 seeds (scenario strong_break).
-  const Stats fitted = run("strong_break", 50);
+  const Stats fitted = run("strong_break");
   EXPECT_EQ(fitted.found, 50u);
   EXPECT_LT(std::abs(fitted.bias), 0.01);
   EXPECT_LT(fitted.sd, 0.01);
-  const Stats calibrated = run("strong_break", 50, {{"slope_mv_per_decade", 29.58}});
+  const Stats calibrated = run("strong_break", {{"slope_mv_per_decade", 29.58}});
   EXPECT_EQ(calibrated.found, 50u);
   EXPECT_LT(std::abs(calibrated.bias), 0.01);
   EXPECT_LT(calibrated.sd, 0.01);
   // Either function alone, from its own side.
   for (const char* side : {"before", "after"}) {
-    const Stats one = run("strong_break", 50, {{"sides", side}});
+    const Stats one = run("strong_break", {{"sides", side}});
     EXPECT_EQ(one.found, 50u);
     EXPECT_LT(std::abs(one.bias), 0.01);
     EXPECT_LT(one.sd, 0.02);
@@ -164,7 +152,7 @@ TEST(GranMethod, StrongBreakFittedAndCalibratedSlope) {
 
 TEST(GranMethod, SpikesAreSkipped) {
   // Three readings 20 mV off on every curve (scenario strong_break_spikes).
-  const Stats s = run("strong_break_spikes", 50);
+  const Stats s = run("strong_break_spikes");
   EXPECT_EQ(s.found, 50u);
   EXPECT_LT(std::abs(s.bias), 0.01);
   EXPECT_LT(s.sd, 0.01);
@@ -179,14 +167,14 @@ TEST(GranMethod, AmmoniaBufferNeedsTheMetalFraction) {
   // titrant dilutes the sample by a fifth here, alpha_M ~ [NH3]^4 falls by
   // half).
   for (const char* name : {"ammonia_copper", "ammonia_zinc"}) {
-    const Stats corrected = run(name, 50, {{"sides", "before"}});
+    const Stats corrected = run(name, {{"sides", "before"}});
     EXPECT_EQ(corrected.found, 50u);
     EXPECT_LT(std::abs(corrected.bias), 0.02) << name;
     EXPECT_LT(corrected.sd, 0.03) << name;
-    const Stats plain = run(name, 50, {{"sides", "before"}, {"correct_metal_fraction", false}});
+    const Stats plain = run(name, {{"sides", "before"}, {"correct_metal_fraction", false}});
     EXPECT_EQ(plain.found, 50u);
     EXPECT_LT(plain.bias, -4.0) << name;  // ends far too early
-    const Stats both = run(name, 50);
+    const Stats both = run(name);
     EXPECT_EQ(both.found, 50u);
     EXPECT_LT(std::abs(both.bias), 0.02) << name;
     EXPECT_LT(both.sd, 0.02) << name;
@@ -279,7 +267,7 @@ TEST(GranMethod, UncertaintyIsHonest) {
   std::vector<double> normalised;
   for (const char* name :
        {"strong_break", "strong_break_spikes", "ammonia_copper", "ammonia_zinc", "weak_log_k_7"})
-    run(name, 50, nlohmann::json::object(), nullptr, &normalised);
+    run(name, nlohmann::json::object(), &normalised);
   ASSERT_EQ(normalised.size(), 250u);
   std::size_t within = 0;
   for (double z : normalised)

@@ -7,7 +7,6 @@
 
 #include <cmath>
 #include <cstdio>
-#include <map>
 #include <string>
 #include <vector>
 
@@ -18,26 +17,15 @@
 #include "detection/model_fit.hpp"
 #include "detection/trials.hpp"
 #include "tests/detection/synthetic.hpp"
+#include "tests/detection/trial_support.hpp"
 
 namespace veq::detection {
 namespace {
 
-const chemistry::ConstantsLibrary& library() {
-  static const chemistry::ConstantsLibrary lib = chemistry::builtin_constants_library().value();
-  return lib;
-}
+using testing::library;
 
-// Seeds 1..50 of a built-in scenario, simulated once per test program.
 const std::vector<TrialCurve>& curves(const std::string& name) {
-  static std::map<std::string, std::vector<TrialCurve>> cache;
-  auto it = cache.find(name);
-  if (it != cache.end())
-    return it->second;
-  const auto scenario = builtin_trial_scenario(name).value();
-  std::vector<TrialCurve> made;
-  for (std::uint64_t seed = 1; seed <= 50; ++seed)
-    made.push_back(simulate_trial_curve(scenario, seed, library()).value());
-  return cache.emplace(name, std::move(made)).first->second;
+  return testing::trial_curves(name);
 }
 
 struct PointStats {
@@ -51,11 +39,10 @@ struct PointStats {
 std::vector<PointStats> run(const std::string& name, const std::string& method,
                             nlohmann::json options = nlohmann::json::object(),
                             std::vector<double>* normalised = nullptr) {
-  const auto scenario = builtin_trial_scenario(name).value();
-  TrialMethod m{method + (options.empty() ? "" : " " + options.dump()), method, options};
-  const auto outcomes = run_trials(curves(name), m, scenario.sample, library());
+  const std::string label = method + (options.empty() ? "" : " " + options.dump());
+  const auto& outcomes = testing::trial_outcomes(name, method, options);
   std::vector<PointStats> out;
-  for (const auto& s : summarise_trials(m.label, outcomes)) {
+  for (const auto& s : summarise_trials(label, outcomes)) {
     PointStats p;
     p.bias = s.bias_percent;
     p.sd = s.sd_percent;
@@ -65,7 +52,7 @@ std::vector<PointStats> run(const std::string& name, const std::string& method,
     std::printf(
         "  %s, %s, point %zu: found %zu/50, bias %.4f %%, sd %.4f %%, max %.4f %%, "
         "within 2u %.0f %%\n",
-        name.c_str(), m.label.c_str(), s.endpoint_index + 1, s.found, s.bias_percent, s.sd_percent,
+        name.c_str(), label.c_str(), s.endpoint_index + 1, s.found, s.bias_percent, s.sd_percent,
         s.max_abs_percent, 100.0 * s.coverage);
     out.push_back(p);
   }

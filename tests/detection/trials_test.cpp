@@ -9,14 +9,12 @@
 #include "chemistry/constants.hpp"
 #include "chemistry/prediction.hpp"
 #include "detection/trials.hpp"
+#include "tests/detection/trial_support.hpp"
 
 namespace veq::detection {
 namespace {
 
-const chemistry::ConstantsLibrary& library() {
-  static const chemistry::ConstantsLibrary lib = chemistry::builtin_constants_library().value();
-  return lib;
-}
+using testing::library;
 
 TEST(Trials, EveryBuiltInScenarioSimulates) {
   for (std::string_view name : trial_scenario_names()) {
