@@ -190,6 +190,7 @@ struct SideFit {
   double sse = 0.0;                       // sum of squared relative residuals
   double residual_var = 0.0;              // sse / (m - 2)
   double a = 0.0, b = 0.0, centre = 0.0;  // 1/h = a + b (V - centre) on the line
+  double inner_ml = 0.0;                  // volume of the innermost point used
 };
 
 // The Gran functions as reciprocals h = 1/G at every point of the curve for
@@ -247,6 +248,7 @@ SideFit regress(const std::vector<double>& v, const std::vector<double>& h,
   fit.a = line.a();
   fit.b = line.b();
   fit.centre = line.centre();
+  fit.inner_ml = v[used.back()];
   return fit;
 }
 
@@ -412,8 +414,16 @@ struct Combined {
   double chi2 = 0.0;      // of the two zeros against each other
 };
 
+// Variance of a line's zero: from the regression, plus an allowance for
+// the incomplete reaction, which may still bend the innermost point kept by
+// up to kIncompleteFraction of the noise; the points next to it bend the
+// same way, so the line tilts and its zero moves by up to about twice that
+// share of the distance from the innermost point to the zero (calibrated on
+// the weak-break trial scenarios). Small for a sharp break, where the line
+// reaches close to its zero; it dominates for a weak one.
 double zero_variance(const SideFit& s, double sigma_r2) {
-  return std::max(s.residual_var, sigma_r2) * s.zero_variance_factor;
+  const double bend = 2.0 * kIncompleteFraction * std::sqrt(sigma_r2) * (s.zero_ml - s.inner_ml);
+  return std::max(s.residual_var, sigma_r2) * s.zero_variance_factor + bend * bend;
 }
 
 Combined combine(const SideFit* before, const SideFit* after, double sigma_r2) {
@@ -623,7 +633,10 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   bool slope_at_limit = false;
   const double slope_lo = 0.5 * nernst, slope_hi = 1.25 * nernst;
   double previous_b1 = 0.0, previous_b2 = 0.0, previous_volume = 0.0;
-  double slope_schur = 0.0, slope_q = 0.0;    // of the slope's last Gauss-Newton step
+  double slope_schur = 0.0, slope_q = 0.0;  // of the slope's last Gauss-Newton step
+  bool slope_fitted_here = false;
+  const double starting_slope = slope;
+  const auto min_points = static_cast<std::size_t>(options.min_points_per_side);
   std::vector<double> scratch_h, scratch_dh;  // for the slope's steps
   // The metal fraction for an equivalence volume (0: the sample's nominal
   // one); true when it was (re)computed.
@@ -713,7 +726,13 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
       after_fit = select_and_fit(v, f.h_after, after_side, sr, options.acceptance_sigma);
     };
     fit_sides();
-    if (fit_slope) {
+    // The slope is fitted only while both lines stand: one line alone pins
+    // it down by its curvature only, too weakly to be worth its uncertainty
+    // (with a weak break the incomplete reaction can leave one side no
+    // points; the slope then stays at its starting value).
+    slope_fitted_here = fit_slope && before_fit.ok && after_fit.ok &&
+                        before_fit.used.size() >= min_points && after_fit.used.size() >= min_points;
+    if (slope_fitted_here) {
       // Slope that makes both functions straightest: least squares in signal
       // units over the ranges just chosen, by Gauss-Newton steps (clamped to
       // 50-125 % of the Nernst slope; a step that does not lower the sum of
@@ -744,6 +763,16 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
         fit_sides();
       }
     }
+    if (fit_slope && !(before_fit.ok && after_fit.ok && before_fit.used.size() >= min_points &&
+                       after_fit.used.size() >= min_points)) {
+      // A side lost its points: back to the starting slope.
+      slope_fitted_here = false;
+      if (slope != starting_slope) {
+        slope = starting_slope;
+        f.reciprocals(slope);
+        fit_sides();
+      }
+    }
     combined = combine(use_before ? &before_fit : nullptr, use_after ? &after_fit : nullptr,
                        sigma_r_of(slope) * sigma_r_of(slope));
     if (!combined.ok)
@@ -757,7 +786,7 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   }
 
   // The slope's own uncertainty, propagated (ranges fixed).
-  if (combined.ok && fit_slope) {
+  if (combined.ok && slope_fitted_here) {
     const double sr2 = sigma_r_of(slope) * sigma_r_of(slope);
     std::vector<double> hb(n), ha(n);
     auto at = [&](double s) {
@@ -794,8 +823,8 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
     details["slope_mv_per_decade"] = slope;
     details["nernst_slope_mv_per_decade"] = nernst;
   }
-  details["slope_fitted"] = fit_slope;
-  if (fit_slope) {
+  details["slope_fitted"] = slope_fitted_here;
+  if (slope_fitted_here) {
     details["slope_uncertainty_mv_per_decade"] = std::sqrt(slope_variance);
     details["slope_percent_of_nernst"] = 100.0 * std::abs(slope) / nernst;
   }
@@ -896,7 +925,7 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   endpoint.volume_ml = combined.volume_ml;
   double variance = combined.variance;
   double chi2 = combined.chi2;
-  if (fit_slope && before_fit.ok && after_fit.ok && use_before && use_after) {
+  if (slope_fitted_here && use_before && use_after) {
     // The slope moves both zeros together; its part of their difference is
     // not a disagreement.
     const double d = before_fit.zero_ml - after_fit.zero_ml;
@@ -929,7 +958,7 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
         !has_flag(endpoint.flags, QualityFlag::poor_linearity))
       endpoint.flags.push_back(QualityFlag::poor_linearity);
   }
-  if (fit_slope) {
+  if (slope_fitted_here) {
     const double percent = 100.0 * std::abs(slope) / nernst;
     if (percent < 80.0 || percent > 105.0)
       endpoint.flags.push_back(QualityFlag::unusual_slope);

@@ -15,5 +15,7 @@ void add_chemistry_commands(CLI::App& app);
 void add_evaluate_commands(CLI::App& app);
 /// `veq run`: one titration against instruments on ports.
 void add_run_command(CLI::App& app);
+/// `veq trials`: endpoint methods on seeded simulated curves (for developers).
+void add_trials_command(CLI::App& app);
 
 }  // namespace veq::cli

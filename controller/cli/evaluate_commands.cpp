@@ -9,6 +9,7 @@
 #include <string>
 #include <vector>
 
+#include "chemistry/sample.hpp"
 #include "controller/cli/commands.hpp"
 #include "controller/curve_csv.hpp"
 #include "controller/store/sqlite_store.hpp"
@@ -103,6 +104,7 @@ struct EvaluateOptions {
   std::string method = "derivative";
   std::vector<std::string> options;  // name=value
   std::string options_json;
+  std::string sample_file;  // sample chemistry for gran and model
   bool json_output = false;
 };
 
@@ -123,6 +125,15 @@ json method_options(const EvaluateOptions& o) {
     const std::string value = item.substr(eq + 1);
     json parsed = json::parse(value, nullptr, false);
     options[item.substr(0, eq)] = parsed.is_discarded() ? json(value) : parsed;
+  }
+  if (!o.sample_file.empty()) {
+    // Parsed here so that a bad document is reported with its file name; the
+    // evaluation then keeps it among its options (and a stored evaluation
+    // with them, so it can be repeated).
+    auto sample = chemistry::parse_sample_json(read_text_file(o.sample_file));
+    if (!sample)
+      throw CLI::Error("EvaluateError", o.sample_file + ": " + sample.error().message, 2);
+    options["sample"] = chemistry::to_json(*sample);
   }
   return options;
 }
@@ -213,6 +224,8 @@ void run_evaluate(const EvaluateOptions& o) {
   }
   for (auto f : evaluation->flags)
     std::printf("  curve flag: %s\n", detection::quality_flag_name(f));
+  if (!evaluation->details.empty())
+    std::printf("details:\n%s\n", evaluation->details.dump(2).c_str());
   if (s) {
     std::printf("stored as evaluation %lld of run %lld in %s\n",
                 static_cast<long long>(evaluation_id), static_cast<long long>(o.run_id),
@@ -281,6 +294,9 @@ evaluate->add_option("--method", eo->method, "endpoint method: " + methods)->cap
 evaluate->add_option("--option", eo->options,
                      "method option NAME=VALUE (repeatable; see docs/detection.md)");
 evaluate->add_option("--options-json", eo->options_json, "method options as a JSON object");
+evaluate->add_option("--sample", eo->sample_file,
+                     "sample chemistry for --method gran or model: a sample document as for "
+                     "veq predict (docs/chemistry.md)");
 evaluate->add_flag("--json", eo->json_output, "print JSON");
 evaluate->callback([eo] { run_evaluate(*eo); });
 }  // namespace veq::cli

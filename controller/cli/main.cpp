@@ -18,6 +18,7 @@ int main(int argc, char** argv) {
   veq::cli::add_chemistry_commands(app);
   veq::cli::add_evaluate_commands(app);
   veq::cli::add_run_command(app);
+  veq::cli::add_trials_command(app);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
