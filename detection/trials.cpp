@@ -6,6 +6,7 @@
 #include <cstdio>
 #include <random>
 #include <sstream>
+#include <tuple>
 
 #include "chemistry/prediction.hpp"
 #include "detection/evaluate.hpp"
@@ -466,6 +467,31 @@ std::vector<TrialOutcome> run_trials(std::span<const TrialCurve> curves, const T
   return outcomes;
 }
 
+std::vector<std::ptrdiff_t> match_endpoints(const TrialOutcome& o) {
+  const std::size_t truths = o.equivalence_ml.size(), found = o.endpoint_ml.size();
+  std::vector<std::ptrdiff_t> match(truths, -1);
+  if (found == truths) {
+    for (std::size_t k = 0; k < truths; ++k)
+      match[k] = static_cast<std::ptrdiff_t>(k);
+    return match;
+  }
+  // Closest pairs first, each endpoint and each truth used once.
+  std::vector<std::tuple<double, std::size_t, std::size_t>> pairs;
+  for (std::size_t k = 0; k < truths; ++k) {
+    for (std::size_t j = 0; j < found; ++j)
+      pairs.emplace_back(std::abs(o.endpoint_ml[j] - o.equivalence_ml[k]), k, j);
+  }
+  std::sort(pairs.begin(), pairs.end());
+  std::vector<bool> used(found, false);
+  for (const auto& [distance, k, j] : pairs) {
+    if (match[k] < 0 && !used[j]) {
+      match[k] = static_cast<std::ptrdiff_t>(j);
+      used[j] = true;
+    }
+  }
+  return match;
+}
+
 std::vector<TrialSummary> summarise_trials(const std::string& label,
                                            std::span<const TrialOutcome> outcomes) {
   std::size_t points = 0;
@@ -485,13 +511,17 @@ std::vector<TrialSummary> summarise_trials(const std::string& label,
         ++s.failed;
         continue;
       }
-      if (k >= o.equivalence_ml.size() || k >= o.endpoint_ml.size())
+      if (k >= o.equivalence_ml.size())
         continue;
+      const auto j = match_endpoints(o)[k];
+      if (j < 0)
+        continue;
+      const auto ju = static_cast<std::size_t>(j);
       const double truth = o.equivalence_ml[k];
-      const double error = o.endpoint_ml[k] - truth;
+      const double error = o.endpoint_ml[ju] - truth;
       errors.push_back(100.0 * error / truth);
-      u_sum += 100.0 * o.uncertainty_ml[k] / truth;
-      if (std::abs(error) <= 2.0 * o.uncertainty_ml[k])
+      u_sum += 100.0 * o.uncertainty_ml[ju] / truth;
+      if (std::abs(error) <= 2.0 * o.uncertainty_ml[ju])
         ++covered;
     }
     s.found = errors.size();
@@ -530,15 +560,17 @@ std::string trials_csv(std::span<const std::string> labels,
         flags += (flags.empty() ? "" : " ") + std::string(quality_flag_name(f));
       if (!o.error.empty())
         flags += (flags.empty() ? "" : " ") + std::string("error");
+      const auto match = match_endpoints(o);
       for (std::size_t k = 0; k < o.equivalence_ml.size(); ++k) {
         // Labels may hold commas (method options): quote them.
         out << '"' << labels[m] << "\"," << o.seed << ',' << k + 1 << ',' << o.equivalence_ml[k]
             << ',';
-        if (k < o.endpoint_ml.size()) {
-          const double error = o.endpoint_ml[k] - o.equivalence_ml[k];
-          out << o.endpoint_ml[k] << ',' << o.uncertainty_ml[k] << ',' << error << ','
+        if (match[k] >= 0) {
+          const auto j = static_cast<std::size_t>(match[k]);
+          const double error = o.endpoint_ml[j] - o.equivalence_ml[k];
+          out << o.endpoint_ml[j] << ',' << o.uncertainty_ml[j] << ',' << error << ','
               << 100.0 * error / o.equivalence_ml[k] << ','
-              << (std::abs(error) <= 2.0 * o.uncertainty_ml[k] ? 1 : 0);
+              << (std::abs(error) <= 2.0 * o.uncertainty_ml[j] ? 1 : 0);
         } else {
           out << ",,,,";
         }
@@ -590,10 +622,14 @@ std::string trials_svg(const std::string& title, std::span<const std::string> la
     std::size_t index = 0;
     for (const auto& o : outcomes[p]) {
       ++index;
-      for (std::size_t k = 0; k < o.equivalence_ml.size() && k < o.endpoint_ml.size(); ++k) {
+      const auto match = match_endpoints(o);
+      for (std::size_t k = 0; k < o.equivalence_ml.size(); ++k) {
+        if (match[k] < 0)
+          continue;
+        const auto j = static_cast<std::size_t>(match[k]);
         const double truth = o.equivalence_ml[k];
-        dots.push_back({static_cast<double>(index), 100.0 * (o.endpoint_ml[k] - truth) / truth,
-                        200.0 * o.uncertainty_ml[k] / truth});
+        dots.push_back({static_cast<double>(index), 100.0 * (o.endpoint_ml[j] - truth) / truth,
+                        200.0 * o.uncertainty_ml[j] / truth});
       }
     }
     double y_max = 1e-6;

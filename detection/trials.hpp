@@ -127,9 +127,15 @@ std::vector<TrialOutcome> run_trials(std::span<const TrialCurve> curves, const T
                                      const chemistry::SampleComposition& nominal_sample,
                                      const chemistry::ConstantsLibrary& library);
 
+/// Which endpoint of an outcome belongs to each true equivalence volume (its
+/// index, or -1 when none does): in order when the method found as many
+/// endpoints as there are equivalence points, else the closest pairs (a
+/// method that sees only the second of two breaks is scored on that one).
+std::vector<std::ptrdiff_t> match_endpoints(const TrialOutcome& outcome);
+
 /// How one method did on one equivalence point over all curves. Errors are
-/// endpoint minus truth, in percent of the true equivalence volume. The
-/// k-th endpoint found is compared with the k-th true equivalence volume.
+/// endpoint minus truth, in percent of the true equivalence volume, the
+/// endpoints matched to the truth by match_endpoints().
 struct TrialSummary {
   std::string label;
   std::size_t endpoint_index = 0;         ///< 0 = first equivalence point

@@ -4,8 +4,9 @@
 //
 //   veq_detection_demo_plots OUTPUT_DIR
 //
-// writes detection-derivative.svg, detection-segments.svg and
-// detection-crossing.svg, and prints the endpoints as a Markdown table.
+// writes detection-derivative.svg, detection-segments.svg,
+// detection-crossing.svg, detection-gran.svg, detection-model.svg and
+// detection-trials.svg, and prints the endpoints as a Markdown table.
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
@@ -15,10 +16,14 @@
 #include <string>
 #include <vector>
 
+#include "chemistry/constants.hpp"
 #include "chemistry/one_to_one.hpp"
 #include "detection/crossing.hpp"
 #include "detection/derivative.hpp"
+#include "detection/gran.hpp"
+#include "detection/model_fit.hpp"
 #include "detection/segments.hpp"
+#include "detection/trials.hpp"
 
 namespace {
 
@@ -283,6 +288,103 @@ int main(int argc, char** argv) {
     write_svg(dir + "/detection-crossing.svg",
               "Crossing method: the calcium demo at a preset -95 mV", {p});
     endpoint_row("crossing", ev);
+  }
+
+  const auto library = veq::chemistry::builtin_constants_library().value();
+
+  // Demo 4: copper in an ammonia buffer (trial scenario ammonia_copper,
+  // seed 3): the Gran functions with and without the metal fraction.
+  {
+    const auto scenario = veq::detection::builtin_trial_scenario("ammonia_copper").value();
+    const auto trial = veq::detection::simulate_trial_curve(scenario, 3, library).value();
+    veq::detection::GranOptions options;
+    options.sample = scenario.sample;
+    const Evaluation ev =
+        veq::detection::find_endpoints_by_gran(trial.curve, options, library).value();
+    options.correct_metal_fraction = false;
+    options.sides = veq::detection::GranSides::before;
+    const Evaluation plain =
+        veq::detection::find_endpoints_by_gran(trial.curve, options, library).value();
+    Panel signal{"potential / mV",
+                 {{trial.curve.volume_ml(), trial.curve.signal(), "#1f4e9a", true, "readings"}},
+                 {},
+                 {}};
+    Panel gran{"Gran function / mL", {}, {}, {}};
+    if (const auto* s = find(ev, "gran_before"))
+      gran.lines.push_back({s->x_ml, s->y, "#1f4e9a", true, "before, corrected with alpha(Cu)"});
+    if (const auto* s = find(ev, "gran_before_line"))
+      gran.lines.push_back({s->x_ml, s->y, "#070", false, "fitted lines"});
+    if (const auto* s = find(ev, "gran_after"))
+      gran.lines.push_back({s->x_ml, s->y, "#7a3fb0", true, "after"});
+    if (const auto* s = find(ev, "gran_after_line"))
+      gran.lines.push_back({s->x_ml, s->y, "#070", false, ""});
+    if (const auto* s = find(plain, "gran_before"))
+      gran.lines.push_back({s->x_ml, s->y, "#e08000", true, "before, plain (no alpha)"});
+    if (const auto* s = find(plain, "gran_before_line"))
+      gran.lines.push_back({s->x_ml, s->y, "#e08000", false, ""});
+    for (const auto& m : ev.diagnostics.markers) {
+      if (m.name == "endpoint 1") {
+        signal.vertical.push_back({m.value, "endpoint " + number(m.value) + " mL"});
+        gran.vertical.push_back({m.value, "corrected " + number(m.value) + " mL"});
+      }
+    }
+    if (!plain.endpoints.empty())
+      gran.vertical.push_back(
+          {plain.endpoints[0].volume_ml, "plain " + number(plain.endpoints[0].volume_ml) + " mL"});
+    write_svg(dir + "/detection-gran.svg",
+              "Gran method: copper in ammonia (trial scenario, equivalence " +
+                  number(trial.equivalence_ml[0]) + " mL)",
+              {signal, gran});
+    endpoint_row("gran", ev);
+    endpoint_row("gran, plain, before only", plain);
+  }
+
+  // Demo 5: calcium and magnesium read by a calcium electrode (trial
+  // scenario two_metals, seed 2): the fitted curve and its residuals.
+  {
+    const auto scenario = veq::detection::builtin_trial_scenario("two_metals").value();
+    const auto trial = veq::detection::simulate_trial_curve(scenario, 2, library).value();
+    veq::detection::ModelFitOptions options;
+    options.sample = scenario.sample;
+    const Evaluation ev =
+        veq::detection::fit_titration_model(trial.curve, options, library).value();
+    Panel signal{"potential / mV",
+                 {{trial.curve.volume_ml(), trial.curve.signal(), "#1f4e9a", true, "readings"}},
+                 {},
+                 {}};
+    if (const auto* s = find(ev, "fitted_signal"))
+      signal.lines.push_back({s->x_ml, s->y, "#c00", false, "fitted model (general speciation)"});
+    Panel residuals{"residual / mV", {}, {}, {}};
+    if (const auto* s = find(ev, "residuals"))
+      residuals.lines.push_back({s->x_ml, s->y, "#1f4e9a", true, "reading - model"});
+    for (const auto& m : ev.diagnostics.markers) {
+      signal.vertical.push_back({m.value, m.name + " " + number(m.value) + " mL"});
+      residuals.vertical.push_back({m.value, ""});
+    }
+    write_svg(dir + "/detection-model.svg",
+              "Model fit: calcium and magnesium, calcium electrode (true " +
+                  number(trial.equivalence_ml[0]) + " and " + number(trial.equivalence_ml[1]) +
+                  " mL)",
+              {signal, residuals});
+    endpoint_row("model", ev);
+  }
+
+  // Demo 6: detection trials on the weakest break (trial scenario
+  // weak_log_k_5_5, 50 seeds): derivative, Gran and model side by side.
+  {
+    const auto scenario = veq::detection::builtin_trial_scenario("weak_log_k_5_5").value();
+    std::vector<veq::detection::TrialCurve> curves;
+    for (std::uint64_t seed = 1; seed <= 50; ++seed)
+      curves.push_back(veq::detection::simulate_trial_curve(scenario, seed, library).value());
+    std::vector<std::string> labels;
+    std::vector<std::vector<veq::detection::TrialOutcome>> outcomes;
+    for (const char* method : {"derivative", "gran", "model"}) {
+      labels.push_back(method);
+      outcomes.push_back(veq::detection::run_trials(
+          curves, veq::detection::parse_trial_method(method).value(), scenario.sample, library));
+    }
+    std::ofstream(dir + "/detection-trials.svg")
+        << veq::detection::trials_svg("Trials: weak_log_k_5_5, 50 seeds", labels, outcomes);
   }
   return 0;
 }

@@ -113,6 +113,25 @@ TEST(Trials, MethodSpecs) {
   EXPECT_FALSE(parse_trial_method("gran:slope"));
 }
 
+TEST(Trials, EndpointsAreMatchedToTheirEquivalencePoints) {
+  TrialOutcome both;
+  both.equivalence_ml = {5.0, 10.0};
+  both.endpoint_ml = {5.1, 9.9};
+  both.uncertainty_ml = {0.1, 0.1};
+  EXPECT_EQ(match_endpoints(both), (std::vector<std::ptrdiff_t>{0, 1}));
+  // Only the second break found: it is scored against the second point.
+  TrialOutcome second = both;
+  second.endpoint_ml = {10.05};
+  second.uncertainty_ml = {0.01};
+  EXPECT_EQ(match_endpoints(second), (std::vector<std::ptrdiff_t>{-1, 0}));
+  const auto summary = summarise_trials("second only", std::vector<TrialOutcome>{second});
+  ASSERT_EQ(summary.size(), 2u);
+  EXPECT_EQ(summary[0].found, 0u);
+  EXPECT_EQ(summary[1].found, 1u);
+  EXPECT_NEAR(summary[1].bias_percent, 0.5, 1e-9);
+  EXPECT_EQ(summary[1].coverage, 0.0);  // 0.05 mL off with 2u = 0.02 mL
+}
+
 TEST(Trials, SummaryCsvAndSvg) {
   auto scenario = builtin_trial_scenario("strong_break").value();
   std::vector<TrialCurve> curves;
