@@ -136,8 +136,11 @@ class RelativeLine {
     det_ = spp_ * sqq_ - spq_ * spq_;
     if (!(det_ > 1e-300 * std::max(spp_ * sqq_, 1e-300)) || m_ < 2.0)
       return false;
-    a_ = (sp_ * sqq_ - sq_ * spq_) / det_;
-    b_ = (spp_ * sq_ - spq_ * sp_) / det_;
+    // One division: its latency, not the arithmetic, bounds the growing of
+    // a line point by point.
+    inverse_det_ = 1.0 / det_;
+    a_ = (sp_ * sqq_ - sq_ * spq_) * inverse_det_;
+    b_ = (spp_ * sq_ - spq_ * sp_) * inverse_det_;
     return true;
   }
   double a() const { return a_; }
@@ -145,10 +148,24 @@ class RelativeLine {
   // Sum of squared residuals at the solution.
   double sse() const { return m_ - a_ * sp_ - b_ * sq_; }
   double residual(double v, double h) const { return 1.0 - (a_ + b_ * (v - centre_)) * h; }
-  // [h, x h] M^-1 [h, x h]^T: the fitted value's variance per unit variance.
-  double leverage(double v, double h) const {
-    const double p = h, q = (v - centre_) * h;
-    return (sqq_ * p * p - 2.0 * spq_ * p * q + spp_ * q * q) / det_;
+  // Whether a point lies within `limit` of the line of the points in it,
+  // the limit widened by the point's leverage: |r| <= limit sqrt(1 + lev).
+  // Works on the normal equations' numerators, without solving them: the
+  // latency of a division per point would otherwise bound the growing of a
+  // line point by point. False when the equations are singular.
+  bool within(double v, double h, double limit) const {
+    const double det = spp_ * sqq_ - spq_ * spq_;
+    if (!(det > 1e-300 * std::max(spp_ * sqq_, 1e-300)) || m_ < 2.0)
+      return false;
+    const double x = v - centre_;
+    const double a_det = sp_ * sqq_ - sq_ * spq_, b_det = spp_ * sq_ - spq_ * sp_;
+    const double r_det = det - (a_det + b_det * x) * h;  // residual times det
+    const double limit_det = limit * det;
+    if (std::abs(r_det) <= limit_det)
+      return true;
+    const double p = h, q = x * h;
+    const double leverage_det = sqq_ * p * p - 2.0 * spq_ * p * q + spp_ * q * q;
+    return r_det * r_det <= limit_det * limit * (det + leverage_det);
   }
   // Zero of the line, mL, and its variance per unit residual variance.
   double zero_ml() const { return centre_ - a_ / b_; }
@@ -171,7 +188,7 @@ class RelativeLine {
   }
   double centre_;
   double m_ = 0.0, spp_ = 0.0, spq_ = 0.0, sqq_ = 0.0, sp_ = 0.0, sq_ = 0.0;
-  double det_ = 0.0, a_ = 0.0, b_ = 0.0;
+  double det_ = 0.0, inverse_det_ = 0.0, a_ = 0.0, b_ = 0.0;
 };
 
 // The points of one side, ordered from the outer end of the curve towards
@@ -297,18 +314,12 @@ SideFit select_and_fit(const std::vector<double>& v, const std::vector<double>& 
   for (std::size_t k = seed; k < count; ++k) {
     const double x = v[order[k]];
     const double hk = h[order[k]];
-    const double r = std::abs(line.residual(x, hk));
-    // The leverage only widens the limit: skip it when the point is inside
-    // anyway.
-    const double narrow = acceptance * sigma_r;
-    if (r <= narrow || r <= narrow * std::sqrt(1.0 + line.leverage(x, hk))) {
+    if (line.within(x, hk, acceptance * sigma_r)) {
       skipped.insert(skipped.end(), missed.begin(), missed.end());
       missed.clear();
       misses = 0;
       line.add(x, hk);
       used.push_back(k);
-      if (!line.solve())
-        return {};
     } else {
       // Three misses in a row end the line (noise alone does that about
       // once in 50 million points); fewer are single bad readings, skipped.
@@ -317,6 +328,8 @@ SideFit select_and_fit(const std::vector<double>& v, const std::vector<double>& 
         break;
     }
   }
+  if (!line.solve())
+    return {};
   // The curved region bends away gradually, so single points pass while
   // together they pull the line: drop inner points while the mean residual
   // of the innermost few departs from zero by more than `acceptance` of its
