@@ -5,9 +5,13 @@
 #pragma once
 
 #include <memory>
+#include <string>
+#include <string_view>
+#include <vector>
 
 #include "drivers/memory_transport.hpp"
 #include "simulator/scenario.hpp"
+#include "simulator/vessel.hpp"
 #include "simulator/virtual_balance.hpp"
 #include "simulator/virtual_burette.hpp"
 #include "simulator/virtual_doser.hpp"
@@ -18,8 +22,33 @@
 
 namespace veq::simulator {
 
-/// The 1:1 chemistry of a scenario's sample with the true titrant.
-chemistry::OneToOneTitration scenario_chemistry(const Scenario& scenario);
+/// The hidden truths of a bench at the clock's present time: what the lab
+/// cannot see over the protocol and a titer, blank or burette check should
+/// find. For tests and trials in the same process only.
+struct BenchTruths {
+  double titrant_label_conc_mol_per_l = 0.0;
+  double titrant_true_conc_mol_per_l = 0.0;
+  /// Each metal the sample brought (name, mol); the chemistry section's
+  /// metals, or the 1:1 sample's one metal.
+  std::vector<std::pair<std::string, double>> sample_metals_mol;
+  /// Blank: metal of the blank metal in the vessel that the sample did not
+  /// bring (scenario blank plus what the dosed reagents carried so far), mol.
+  double blank_metal_mol = 0.0;
+  /// Titrant in the vessel before the first dose (premixed Cu-EDTA), mol.
+  double premixed_titrant_mol = 0.0;
+  double titrant_delivered_ml = 0.0;  ///< truly delivered by the burette so far, mL
+  double burette_systematic_error_percent = 0.0;
+  double burette_random_error_ml = 0.0;
+  double balance_offset_g = 0.0;
+  double balance_sensitivity_error_percent = 0.0;
+  /// Metal held by the indicator now, mol (chemistry section with an indicator).
+  double indicator_bound_metal_mol = 0.0;
+  /// Burette reading at the stoichiometric equivalence of the sample alone
+  /// and of everything titratable in the vessel now (sample + blank -
+  /// premixed titrant), mL, with the burette's systematic error.
+  double sample_equivalence_reading_ml = 0.0;
+  double vessel_equivalence_reading_ml = 0.0;
+};
 
 class SimulatedBench {
  public:
@@ -45,16 +74,31 @@ class SimulatedBench {
   /// a host reopens it, see drivers::MemoryTransport::reopen).
   void disconnect();
 
+  /// The device of a role ("burette", "electrode", "auxiliary_doser",
+  /// "photometer", "balance", "stirrer", "sample_changer"), or nullptr.
+  VirtualDevice* device(std::string_view role);
+  /// Switches a line or sensor fault of a role at run time: the plan's
+  /// after_s and until_s are moments of device time (after_s = now: at once);
+  /// FaultKind::none clears the role's faults. False for an unknown role.
+  bool set_fault(std::string_view role, FaultPlan plan);
+  bool add_fault(std::string_view role, FaultPlan plan);
+
   /// Hidden truth: the burette counter reading (mL) at which the titrant truly
-  /// delivered equals the metal in the sample, i.e. the equivalence volume as
+  /// delivered equals the titratable metal in the vessel now (the sample, the
+  /// blank so far, less any premixed titrant), i.e. the equivalence volume as
   /// this burette would show it, with its systematic error and the titrant's
-  /// true concentration.
+  /// true concentration. Without blank or premixed titrant: the sample's.
   double true_equivalence_reading_ml() const;
+  /// Every hidden truth at the present time.
+  BenchTruths truths() const;
+  /// What has entered the vessel besides the sample and the titrant now.
+  VesselContent additions() const;
   const Scenario& scenario() const { return scenario_; }
 
  private:
   Scenario scenario_;
   std::mutex vessel_lock_;
+  mutable VesselModel truth_vessel_;  // for the indicator's share
   VirtualBurette burette_;
   VirtualElectrode electrode_;
   drivers::MemoryTransport burette_line_;

@@ -23,6 +23,8 @@ std::string ProfileSpeakingDevice::receive(std::string_view bytes) {
 }
 
 std::string ProfileSpeakingDevice::answer(const std::string& line) {
+  if (device_.cable_pulled())
+    return {};
   std::string bytes;
   if (profile_.echo)
     bytes = line + profile_.reply_end;
@@ -51,15 +53,18 @@ std::optional<drivers::Duration> ProfileSpeakingDevice::next_unsolicited_at() co
 }
 
 std::string ProfileSpeakingDevice::unsolicited() {
+  if (device_.cable_pulled())
+    return {};
+  std::string out = device_.release_delayed();
   auto reading = device_.take_streamed();
   if (!reading)
-    return {};
+    return out;
   auto text = profile::encode_unsolicited(profile_, *reading);
   if (!text) {
     problems_.push_back("streamed reading: " + text.error().message);
-    return {};
+    return out;
   }
-  return device_.through_line(*text);
+  return out + device_.through_line(*text) + device_.release_delayed();
 }
 
 }  // namespace veq::simulator

@@ -1,5 +1,8 @@
 #include "simulator/scenario.hpp"
 
+#include "simulator/vessel.hpp"
+
+#include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
 #include <sstream>
@@ -104,7 +107,11 @@ struct Reader {
     if (!r.is_object())
       return fail(where, "must be false, true or { \"reservoir_ml\": N }");
     out.present = true;
-    return number(r, where.c_str(), "reservoir_ml", out.reservoir_ml, false, 0.0, 1e6);
+    return number(r, where.c_str(), "reservoir_ml", out.reservoir_ml, false, 0.0, 1e6) &&
+           number(r, where.c_str(), "metal_conc_mol_per_l", out.metal_conc_mol_per_l, false, 0.0,
+                  1.0) &&
+           number(r, where.c_str(), "strong_acid_mol_per_l", out.strong_acid_mol_per_l, false,
+                  -20.0, 20.0);
   }
 
   bool motor_fault(const json& obj, const char* section, MotorFault& out) {
@@ -128,13 +135,19 @@ struct Reader {
     const json& f = obj.at("fault");
     const std::string where = std::string(section) + ".fault";
     if (!f.is_object() || !f.contains("kind") || !f.at("kind").is_string()) {
-      return fail(where, "must be { \"kind\": \"silence|garbage|partial_line\", \"after_s\": N }");
+      return fail(where,
+                  "must be { \"kind\": \"silence|garbage|partial_line|slow_replies|"
+                  "disconnect|dead|spikes|out_of_range|never_stable\", \"after_s\": N }");
     }
     bool ok = false;
     out.kind = fault_kind_from_name(f.at("kind").get<std::string>(), &ok);
     if (!ok)
       return fail(where + ".kind", "unknown fault '" + f.at("kind").get<std::string>() + "'");
-    return number(f, where.c_str(), "after_s", out.after_s, false, 0.0, 1e9);
+    return number(f, where.c_str(), "after_s", out.after_s, false, 0.0, 1e9) &&
+           number(f, where.c_str(), "until_s", out.until_s, false, 0.0, 1e300) &&
+           number(f, where.c_str(), "delay_ms", out.delay_ms, false, 0.0, 3.6e6) &&
+           number(f, where.c_str(), "probability", out.probability, false, 0.0, 1.0) &&
+           number(f, where.c_str(), "size", out.size, false, 0.0, 1e6);
   }
 };
 
@@ -150,6 +163,11 @@ FaultKind fault_kind_from_name(std::string_view name, bool* ok) {
     return FaultKind::garbage;
   if (name == "partial_line")
     return FaultKind::partial_line;
+  for (FaultKind k : {FaultKind::slow_replies, FaultKind::disconnect, FaultKind::dead,
+                      FaultKind::spikes, FaultKind::out_of_range, FaultKind::never_stable}) {
+    if (name == fault_kind_name(k))
+      return k;
+  }
   *ok = false;
   return FaultKind::none;
 }
@@ -192,6 +210,18 @@ const char* fault_kind_name(FaultKind kind) {
       return "garbage";
     case FaultKind::partial_line:
       return "partial_line";
+    case FaultKind::slow_replies:
+      return "slow_replies";
+    case FaultKind::disconnect:
+      return "disconnect";
+    case FaultKind::dead:
+      return "dead";
+    case FaultKind::spikes:
+      return "spikes";
+    case FaultKind::out_of_range:
+      return "out_of_range";
+    case FaultKind::never_stable:
+      return "never_stable";
   }
   return "none";
 }
@@ -223,7 +253,46 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
       s.seed = doc.at("seed").get<std::uint64_t>();
     }
   }
-  if (const json* j = r.section(doc, "sample", true)) {
+  const bool general = doc.contains("chemistry");
+  if (general) {
+    const json& c = doc.at("chemistry");
+    if (!c.is_object()) {
+      r.fail("chemistry", "must be a chemistry sample object (docs/chemistry.md)");
+    } else {
+      s.chemistry.present = true;
+      json copy = c;
+      copy.erase("blank_metal");
+      copy.erase("premixed_titrant_mol");
+      r.number(c, "chemistry", "premixed_titrant_mol", s.chemistry.premixed_titrant_mol, false, 0.0,
+               1.0);
+      s.chemistry.sample_json = copy.dump();
+      r.text(c, "chemistry", "blank_metal", s.chemistry.blank_metal);
+      // What the 1:1 fields would hold, for the truths: the blank metal's
+      // content and the sample volume.
+      if (c.contains("sample_volume_ml") && c.at("sample_volume_ml").is_number())
+        s.sample.volume_ml = c.at("sample_volume_ml").get<double>();
+      if (c.contains("metals") && c.at("metals").is_array()) {
+        for (const json& m : c.at("metals")) {
+          if (!m.is_object() || !m.contains("name") || !m.contains("conc_mol_per_l") ||
+              !m.at("name").is_string() || !m.at("conc_mol_per_l").is_number())
+            continue;
+          const std::string name = m.at("name").get<std::string>();
+          if (s.chemistry.blank_metal.empty())
+            s.chemistry.blank_metal = name;
+          if (name == s.chemistry.blank_metal) {
+            s.sample.metal = name;
+            s.sample.metal_conc_mol_per_l = m.at("conc_mol_per_l").get<double>();
+          }
+        }
+      }
+    }
+  }
+  if (general && doc.contains("sample")) {
+    if (const json* j = r.section(doc, "sample", false)) {
+      r.number(*j, "sample", "blank_metal_mol", s.sample.blank_metal_mol, false, 0.0, 1.0);
+      r.number(*j, "sample", "reaction_time_s", s.sample.reaction_time_s, false, 0.0, 3600.0);
+    }
+  } else if (const json* j = general ? nullptr : r.section(doc, "sample", true)) {
     r.text(*j, "sample", "metal", s.sample.metal);
     double charge = s.sample.charge;
     r.number(*j, "sample", "charge", charge, false, 1, 4);
@@ -235,6 +304,7 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
              40.0);
     r.number(*j, "sample", "alpha_metal", s.sample.alpha_metal, false, 1e-30, 1.0);
     r.number(*j, "sample", "reaction_time_s", s.sample.reaction_time_s, false, 0.0, 3600.0);
+    r.number(*j, "sample", "blank_metal_mol", s.sample.blank_metal_mol, false, 0.0, 1.0);
   }
   if (const json* j = r.section(doc, "titrant", true)) {
     r.text(*j, "titrant", "name", s.titrant.name);
@@ -255,7 +325,7 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
           s.titrant.pka.push_back(p[i].get<double>());
         }
       }
-    } else {
+    } else if (!general) {
       r.fail("titrant.pka", "missing (acid constants of the titrant)");
     }
   }
@@ -288,6 +358,34 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "electrode", "drift_mv_per_min", s.electrode.drift_mv_per_min, false, -100.0,
              100.0);
     r.text(*j, "electrode", "serial_number", s.electrode.serial_number);
+    r.number(*j, "electrode", "mixing_time_s", s.electrode.mixing_time_s, false, 0.0, 600.0);
+    r.text(*j, "electrode", "metal", s.electrode.metal);
+    if (j->contains("interferents")) {
+      const json& list = j->at("interferents");
+      if (!list.is_array()) {
+        r.fail("electrode.interferents",
+               "must be a list of { \"metal\": ..., \"coefficient\": N }");
+      } else {
+        for (std::size_t i = 0; i < list.size(); ++i) {
+          const std::string where = "electrode.interferents[" + std::to_string(i) + "]";
+          Interferent f;
+          if (!list[i].is_object() || !list[i].contains("metal") ||
+              !list[i].at("metal").is_string()) {
+            r.fail(where, "must be { \"metal\": \"Mg\", \"coefficient\": N }");
+            break;
+          }
+          f.metal = list[i].at("metal").get<std::string>();
+          r.number(list[i], where.c_str(), "coefficient", f.coefficient, true, 0.0, 1e6);
+          s.electrode.interferents.push_back(f);
+        }
+        if (!s.electrode.interferents.empty() && !general)
+          r.fail("electrode.interferents",
+                 "needs a chemistry section (the interfering metals' "
+                 "free concentrations come from its equilibrium)");
+      }
+    }
+    if (!s.electrode.metal.empty() && !general)
+      r.fail("electrode.metal", "needs a chemistry section");
     r.fault(*j, "electrode", s.electrode_fault);
   }
   if (const json* j = r.section(doc, "auxiliary_doser", false)) {
@@ -316,6 +414,7 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "photometer", "path_length_cm", p.path_length_cm, false, 0.01, 100.0);
     r.number(*j, "photometer", "baseline_absorbance", p.baseline_absorbance, false, 0.0, 5.0);
     r.number(*j, "photometer", "noise_absorbance", p.noise_absorbance, false, 0.0, 1.0);
+    r.number(*j, "photometer", "stray_light_fraction", p.stray_light_fraction, false, 0.0, 1.0);
     r.band(*j, "photometer", "metal", p.metal);
     r.band(*j, "photometer", "complex", p.complex);
     r.band(*j, "photometer", "titrant", p.titrant);
@@ -338,6 +437,9 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "balance", "noise_g", b.noise_g, false, 0.0, 100.0);
     r.number(*j, "balance", "settle_time_s", b.settle_time_s, false, 0.0, 600.0);
     r.number(*j, "balance", "stable_band_g", b.stable_band_g, false, 0.0, 100.0);
+    r.number(*j, "balance", "offset_g", b.offset_g, false, -1e3, 1e3);
+    r.number(*j, "balance", "sensitivity_error_percent", b.sensitivity_error_percent, false, -10.0,
+             10.0);
     r.fault(*j, "balance", s.balance_fault);
   }
   if (const json* j = r.section(doc, "stirrer", false)) {
@@ -364,8 +466,73 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.integer(*j, "sample_changer", "blocked_position", c.blocked_position, 0, 1000);
     r.fault(*j, "sample_changer", s.sample_changer_fault);
   }
+  if (const json* j = r.section(doc, "replay", false)) {
+    auto& p = s.replay;
+    p.present = true;
+    r.text(*j, "replay", "role", p.role);
+    if (p.role != "electrode" && p.role != "photometer")
+      r.fail("replay.role", "must be \"electrode\" or \"photometer\"");
+    std::string outside = "clamp";
+    r.text(*j, "replay", "outside", outside);
+    if (outside == "fault") {
+      p.outside = ReplayOutside::fault;
+    } else if (outside != "clamp") {
+      r.fail("replay.outside", "must be \"clamp\" or \"fault\"");
+    }
+    r.text(*j, "replay", "file", p.file);
+    const bool inline_points = j->contains("volume_ml") || j->contains("signal");
+    if (inline_points == !p.file.empty()) {
+      r.fail("replay", "needs either \"file\" (a CSV) or the lists \"volume_ml\" and \"signal\"");
+    } else if (inline_points) {
+      std::vector<double> columns[2];
+      const char* keys[2] = {"volume_ml", "signal"};
+      for (int c = 0; c < 2; ++c) {
+        const json* list = j->contains(keys[c]) ? &j->at(keys[c]) : nullptr;
+        if (!list || !list->is_array()) {
+          r.fail(std::string("replay.") + keys[c], "must be a list of numbers");
+          break;
+        }
+        for (std::size_t i = 0; i < list->size(); ++i) {
+          if (!(*list)[i].is_number()) {
+            r.fail(std::string("replay.") + keys[c] + "[" + std::to_string(i) + "]",
+                   "must be a number");
+            break;
+          }
+          columns[c].push_back((*list)[i].get<double>());
+        }
+      }
+      if (r.error.empty()) {
+        auto curve = replay_from_columns(columns[0], columns[1]);
+        if (!curve) {
+          r.fail("replay", curve.error().message);
+        } else {
+          p.volume_ml = std::move(curve->volume_ml);
+          p.signal = std::move(curve->signal);
+        }
+      }
+    }
+  }
   if (!r.error.empty())
     return make_error(ErrorKind::invalid_input, r.error);
+  if (s.chemistry.present) {
+    // The general chemistry must build and solve now, not when a device reads.
+    auto vessel = VesselModel::create(s);
+    if (!vessel)
+      return make_error(ErrorKind::invalid_input, r.source + ": " + vessel.error().message);
+    if (vessel->metal_index(s.electrode.metal) < 0) {
+      return make_error(ErrorKind::invalid_input, r.source + ": electrode.metal: '" +
+                                                      s.electrode.metal +
+                                                      "' is not a metal of the chemistry section");
+    }
+    for (std::size_t i = 0; i < s.electrode.interferents.size(); ++i) {
+      const std::string& m = s.electrode.interferents[i].metal;
+      if (vessel->metal_index(m) < 0 || m.empty()) {
+        return make_error(ErrorKind::invalid_input,
+                          r.source + ": electrode.interferents[" + std::to_string(i) +
+                              "].metal: '" + m + "' is not a metal of the chemistry section");
+      }
+    }
+  }
   return s;
 }
 
@@ -375,7 +542,26 @@ Result<Scenario> load_scenario(const std::string& path) {
     return make_error(ErrorKind::not_found, "cannot open scenario file '" + path + "'");
   std::ostringstream text;
   text << in.rdbuf();
-  return parse_scenario(text.str(), path);
+  auto scenario = parse_scenario(text.str(), path);
+  if (!scenario || !scenario->replay.present || scenario->replay.file.empty())
+    return scenario;
+  // The replayed curve's file lies beside the scenario unless its path is absolute.
+  std::filesystem::path csv(scenario->replay.file);
+  if (csv.is_relative())
+    csv = std::filesystem::path(path).parent_path() / csv;
+  std::ifstream curve_in(csv, std::ios::binary);
+  if (!curve_in) {
+    return make_error(ErrorKind::not_found,
+                      path + ": replay.file: cannot open '" + csv.string() + "'");
+  }
+  std::ostringstream curve_text;
+  curve_text << curve_in.rdbuf();
+  auto curve = parse_replay_csv(curve_text.str(), csv.string());
+  if (!curve)
+    return curve.error();
+  scenario->replay.volume_ml = std::move(curve->volume_ml);
+  scenario->replay.signal = std::move(curve->signal);
+  return scenario;
 }
 
 }  // namespace veq::simulator

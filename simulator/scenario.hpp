@@ -24,6 +24,11 @@ struct SampleSpec {
   /// once (calcium, zinc); tens of seconds for slow ones (nickel, aluminium),
   /// whose free metal approaches equilibrium only gradually after each dose.
   double reaction_time_s = 0.0;
+  /// Hidden truth: metal already in the vessel before any titrant that the
+  /// sample did not bring (a buffer or water carrying a little of the same
+  /// metal: the blank), mol. It is titrated with the sample's metal. 0: a
+  /// perfectly clean bench, which would let no blank determination fail.
+  double blank_metal_mol = 0.0;
 };
 
 struct TitrantSpec {
@@ -59,6 +64,13 @@ struct BuretteSpec {
   MotorFault motor_fault;
 };
 
+/// A metal other than the measured one that the electrode also answers to
+/// (Nikolsky-Eisenman), with its potentiometric selectivity coefficient.
+struct Interferent {
+  std::string metal;         ///< name in the chemistry section (constants library)
+  double coefficient = 0.0;  ///< K_ij, dimensionless
+};
+
 struct ElectrodeSpec {
   std::string model = "veq virtual millivolt meter";
   std::string electrode = "calcium ion-selective (virtual)";
@@ -69,12 +81,28 @@ struct ElectrodeSpec {
   double response_time_s = 2.0;   ///< first-order time constant of the response, s
   double drift_mv_per_min = 0.0;  ///< steady drift of the reference electrode, mV/min
   std::string serial_number = "virtual-meter-1";
+  /// Time constant of mixing, s: a dose reaches the electrode's surface
+  /// gradually, as if the vessel's content near it followed the bulk with
+  /// this first-order lag. 0: perfectly mixed at once.
+  double mixing_time_s = 0.0;
+  /// Chemistry section only: the metal the electrode senses (default: the
+  /// first metal), e.g. "Cu" for indirect indication with a little Cu-EDTA.
+  std::string metal;
+  /// Chemistry section only: other metals it answers to.
+  std::vector<Interferent> interferents;
 };
 
 /// One reagent bottle of an auxiliary doser.
 struct ReagentSpec {
   bool present = false;         ///< the doser has a pump for it
   double reservoir_ml = 500.0;  ///< left in the bottle, mL
+  /// Hidden truth: the titrated metal this reagent carries, mol/L (a buffer
+  /// made from salts with a trace of calcium adds a blank with every mL).
+  double metal_conc_mol_per_l = 0.0;
+  /// Strong acid in the reagent, mol/L (negative: strong base). It moves the
+  /// vessel's pH only when the scenario's chemistry section leaves pH to the
+  /// proton balance (no fixed "ph"); the 1:1 model holds pH fixed.
+  double strong_acid_mol_per_l = 0.0;
 };
 
 struct AuxiliaryDoserSpec {
@@ -108,6 +136,9 @@ struct PhotometerSpec {
   double path_length_cm = 1.0;        ///< light path through the vessel (a dipping probe)
   double baseline_absorbance = 0.05;  ///< the cell and solvent, before any reference is taken
   double noise_absorbance = 0.0005;   ///< standard deviation of each reading's noise
+  /// Stray light as a fraction of the lamp's light reaching the detector
+  /// unabsorbed: A = -log10((T + s) / (1 + s)). 0: an ideal instrument.
+  double stray_light_fraction = 0.0;
   /// Bands of the free metal, the 1:1 complex and the free titrant. Default:
   /// only the complex absorbs, a copper-EDTA-like band near 745 nm with
   /// ε about 95 L/(mol cm) (recalled from memory; invented for the demo).
@@ -133,6 +164,12 @@ struct BalanceSpec {
   double noise_g = 0.00005;       ///< standard deviation of the reading's noise, g
   double settle_time_s = 1.5;     ///< first-order time constant after a load change, s
   double stable_band_g = 0.0003;  ///< reading within this of the load counts as stable, g
+  /// Hidden truth: the zero error of the balance, g, added to every gross
+  /// reading (a tare removes it; an untared weighing carries it).
+  double offset_g = 0.0;
+  /// Hidden truth: error of the balance's sensitivity, %: shown gross =
+  /// load * (1 + e/100) + offset (what a check weight would reveal).
+  double sensitivity_error_percent = 0.0;
 };
 
 struct StirrerSpec {
@@ -158,13 +195,69 @@ struct SampleChangerSpec {
   int blocked_position = 0;
 };
 
-/// Faults a virtual device can be told to show (append-only names).
-enum class FaultKind : int { none = 0, silence = 1, garbage = 2, partial_line = 3 };
+/// The sample computed by the general equilibrium engine instead of the 1:1
+/// model: a chemistry sample document (docs/chemistry.md: metals, pH or a
+/// proton balance, buffer and masking ligands, indicator) with the shipped
+/// constants library. The titrant's concentration is the scenario's true one.
+struct ChemistrySpec {
+  bool present = false;
+  std::string sample_json;  ///< the section's text, for chemistry::parse_sample_json
+  /// Metal the blank and reagent metal belong to (default: the first metal).
+  std::string blank_metal;
+  /// Titrant already in the vessel before the first dose, mol: a little
+  /// Cu-EDTA added for indirect indication brings this much EDTA along with
+  /// the copper listed among the metals. 0: none.
+  double premixed_titrant_mol = 0.0;
+};
 
-/// A fault that starts at a moment of virtual time and lasts from then on.
+/// What a replayed instrument does when the dosed volume leaves the stored
+/// curve's range.
+enum class ReplayOutside : int { clamp = 0, fault = 1 };
+
+/// A stored curve served as the electrode or the photometer: the signal is
+/// interpolated linearly at the titrant volume in the vessel.
+struct ReplaySpec {
+  bool present = false;
+  std::string role = "electrode";  ///< "electrode" (mV) or "photometer" (absorbance)
+  std::vector<double> volume_ml;   ///< strictly increasing
+  std::vector<double> signal;      ///< mV or absorbance at each volume
+  ReplayOutside outside = ReplayOutside::clamp;
+  std::string file;  ///< CSV path, read by load_scenario (relative to the scenario file)
+};
+
+/// Faults a virtual device can be told to show (append-only names).
+/// On the line: silence, garbage, partial_line, slow_replies, disconnect.
+/// In the sensor (electrode, photometer; never_stable: balance): dead,
+/// spikes, out_of_range, never_stable.
+enum class FaultKind : int {
+  none = 0,
+  silence = 1,       ///< the device answers nothing
+  garbage = 2,       ///< line noise in place of each message
+  partial_line = 3,  ///< the first half of each message, no line end
+  slow_replies = 4,  ///< each message arrives delay_ms late
+  disconnect = 5,    ///< the cable is pulled: the line closes at the next request
+  dead = 6,          ///< the sensor's reading freezes at its value when the fault began
+  spikes = 7,        ///< now and then a reading is off by +-size
+  out_of_range = 8,  ///< the meter refuses every reading with over_limit
+  never_stable = 9,  ///< the balance's reading wanders by +-size and never settles
+};
+
+/// A fault that starts at a moment of virtual time and lasts until another
+/// (from then on, unless until_s is set).
 struct FaultPlan {
   FaultKind kind = FaultKind::none;
   double after_s = 0.0;  ///< seconds of device time before the fault begins
+  /// Seconds of device time at which the fault ends; infinity: never.
+  double until_s = 1e300;
+  /// slow_replies: how late each message arrives, ms. 2000 is longer than a
+  /// typical 1 s reply timeout, so that a host must notice it.
+  double delay_ms = 2000.0;
+  /// spikes: chance that one reading is hit, 0..1. 0.2: often enough to show
+  /// in a 30-point curve.
+  double probability = 0.2;
+  /// spikes and never_stable: size of the error in the reading's own unit
+  /// (mV, absorbance, g); 0 picks 50 mV, 0.5 absorbance or 0.05 g.
+  double size = 0.0;
 };
 
 struct Scenario {
@@ -186,12 +279,26 @@ struct Scenario {
   FaultPlan balance_fault;
   FaultPlan stirrer_fault;
   FaultPlan sample_changer_fault;
+  /// The general chemistry (see ChemistrySpec); unset: the 1:1 model above.
+  ChemistrySpec chemistry;
+  ReplaySpec replay;
 };
 
 /// Parses a scenario document. Errors name the field (and line for syntax).
 Result<Scenario> parse_scenario(std::string_view json_text, std::string_view source_name);
 /// Reads and parses a scenario file.
 Result<Scenario> load_scenario(const std::string& path);
+
+/// A replay curve from CSV text: two columns, volume (mL) then signal, an
+/// optional header line, commas or semicolons. Errors name the line.
+Result<ReplaySpec> parse_replay_csv(std::string_view text, std::string_view source_name);
+/// A replay curve from a stored run's columns (plain vectors, e.g. read from
+/// the store by the caller). Errors name the row.
+Result<ReplaySpec> replay_from_columns(const std::vector<double>& volume_ml,
+                                       const std::vector<double>& signal);
+/// The stored signal at a volume (mL), linear between stored points. Outside
+/// the stored range it is the nearest end's value and *outside is set.
+double replay_signal(const ReplaySpec& replay, double volume_ml, bool* outside);
 
 FaultKind fault_kind_from_name(std::string_view name, bool* ok);
 const char* fault_kind_name(FaultKind kind);

@@ -18,9 +18,14 @@ double VirtualBalance::load_g() const {
   return load;
 }
 
+double VirtualBalance::shown_target_g() const {
+  // The hidden errors of the balance: sensitivity and zero offset.
+  return load_g() * (1.0 + spec_.sensitivity_error_percent / 100.0) + spec_.offset_g;
+}
+
 double VirtualBalance::settle() {
   const auto now = clock_.now();
-  const double target = load_g();
+  const double target = shown_target_g();
   if (!started_ || spec_.settle_time_s <= 0.0) {
     shown_g_ = target;
   } else {
@@ -47,8 +52,15 @@ protocol::Message VirtualBalance::handle(const protocol::Message& request) {
     return m;
   }
   if (word == "read" || word == "tare") {
-    const double shown = settle();
-    const bool stable = std::fabs(shown - load_g()) <= spec_.stable_band_g;
+    double shown = settle();
+    bool stable = std::fabs(shown - shown_target_g()) <= spec_.stable_band_g;
+    if (const FaultPlan* f = active_fault(FaultKind::never_stable)) {
+      // A draught or a vessel touching the housing: the display wanders.
+      const double size = f->size > 0.0 ? f->size : 0.05;
+      std::uniform_real_distribution<double> wander(-size, size);
+      shown += wander(random_);
+      stable = false;
+    }
     if (load_g() > spec_.capacity_g) {
       return protocol::error_reply(
           seq, "over_limit",

@@ -18,7 +18,7 @@ class VirtualBalance final : public VirtualDevice {
 
   /// Puts a mass on the pan (or takes it off, if negative), g.
   void place(double mass_g) { placed_g_ += mass_g; }
-  /// The true gross load on the pan now, g.
+  /// The true gross load on the pan now (without the balance's errors), g.
   double load_g() const;
 
  protected:
@@ -27,6 +27,8 @@ class VirtualBalance final : public VirtualDevice {
  private:
   /// The settling display, gross, noise-free, at the present time (g).
   double settle();
+  /// What the display settles to: the load with the balance's hidden errors, g.
+  double shown_target_g() const;
 
   BalanceSpec spec_;
   std::function<double()> burette_true_ml_;

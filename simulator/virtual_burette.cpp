@@ -268,4 +268,10 @@ protocol::Message VirtualBurette::handle(const protocol::Message& request) {
   return protocol::error_reply(seq, "unknown_command", "no command '" + word + "'");
 }
 
+void VirtualBurette::set_motor_fault(MotorFault fault) {
+  // Book what the motion did up to now under the old plan first.
+  update();
+  spec_.motor_fault = fault;
+}
+
 }  // namespace veq::simulator

@@ -18,6 +18,11 @@ class VirtualBurette final : public VirtualDevice {
   double counter_ml() const;
   /// True while the motor moves (dose or fill) at the clock's present time.
   bool moving() const;
+  /// Switches a motor fault on (from after_s of device time; the present
+  /// time for at once) or off (kind none) at run time. A motion under way
+  /// stops when the fault begins.
+  void set_motor_fault(MotorFault fault);
+  const MotorFault& motor_fault() const { return spec_.motor_fault; }
   /// How the last motion ended: "completed", "host", "time_limit",
   /// "host_silence", "fault" (a motor fault from the scenario).
   const std::string& last_stop() const { return last_stop_; }

@@ -7,8 +7,66 @@ namespace protocol = drivers::protocol;
 VirtualDevice::VirtualDevice(drivers::Clock& clock, std::uint64_t seed)
     : clock_(clock), random_(seed) {}
 
-bool VirtualDevice::fault_active() const {
-  return fault_.kind != FaultKind::none && clock_.now_s() >= fault_.after_s;
+void VirtualDevice::set_fault(FaultPlan plan) {
+  faults_.clear();
+  add_fault(plan);
+}
+
+void VirtualDevice::add_fault(FaultPlan plan) {
+  if (plan.kind != FaultKind::none)
+    faults_.push_back(plan);
+}
+
+const FaultPlan* VirtualDevice::active_fault(FaultKind kind) const {
+  const double now_s = clock_.now_s();
+  for (const FaultPlan& f : faults_) {
+    if (f.kind == kind && now_s >= f.after_s && now_s < f.until_s)
+      return &f;
+  }
+  return nullptr;
+}
+
+bool VirtualDevice::cable_pulled() {
+  if (!active_fault(FaultKind::disconnect)) {
+    pulled_ = false;
+    return false;
+  }
+  if (!pulled_ && pull_cable_) {
+    pulled_ = true;
+    delayed_.clear();
+    pending_.clear();
+    pull_cable_();
+  }
+  return true;
+}
+
+std::string VirtualDevice::release_delayed() {
+  std::string out;
+  const auto now = clock_.now();
+  while (!delayed_.empty() && delayed_.front().first <= now) {
+    out += delayed_.front().second;
+    delayed_.pop_front();
+  }
+  return out;
+}
+
+bool VirtualDevice::sensor_faults(double& value, double default_spike) {
+  if (active_fault(FaultKind::dead)) {
+    // A broken membrane or a dry probe: the meter shows what it last saw.
+    if (!dead_value_)
+      dead_value_ = value;
+    value = *dead_value_;
+  } else {
+    dead_value_.reset();
+  }
+  if (const FaultPlan* f = active_fault(FaultKind::spikes)) {
+    std::uniform_real_distribution<double> chance(0.0, 1.0);
+    if (chance(random_) < f->probability) {
+      const double size = f->size > 0.0 ? f->size : default_spike;
+      value += chance(random_) < 0.5 ? -size : size;
+    }
+  }
+  return active_fault(FaultKind::out_of_range) == nullptr;
 }
 
 std::unique_lock<std::mutex> VirtualDevice::lock_bench() {
@@ -18,6 +76,8 @@ std::unique_lock<std::mutex> VirtualDevice::lock_bench() {
 }
 
 std::string VirtualDevice::receive(std::string_view bytes) {
+  if (cable_pulled())
+    return {};
   pending_.append(bytes);
   std::string out;
   std::size_t end;
@@ -55,9 +115,12 @@ void VirtualDevice::stream_every(drivers::Duration interval) {
 }
 
 std::optional<drivers::Duration> VirtualDevice::next_unsolicited_at() const {
-  if (!streaming())
-    return std::nullopt;
-  return next_stream_;
+  std::optional<drivers::Duration> due;
+  if (streaming())
+    due = next_stream_;
+  if (!delayed_.empty() && (!due || delayed_.front().first < *due))
+    due = delayed_.front().first;
+  return due;
 }
 
 std::optional<protocol::Message> VirtualDevice::take_streamed() {
@@ -74,19 +137,21 @@ std::optional<protocol::Message> VirtualDevice::take_streamed() {
 }
 
 std::string VirtualDevice::unsolicited() {
-  auto m = take_streamed();
-  if (!m)
+  if (cable_pulled())
     return {};
-  return through_line(protocol::encode(*m));
+  std::string out = release_delayed();
+  if (auto m = take_streamed())
+    out += through_line(protocol::encode(*m));
+  return out + release_delayed();
 }
 
 std::string VirtualDevice::through_line(std::string bytes) {
-  if (bytes.empty() || !fault_active())
+  if (bytes.empty() || faults_.empty())
     return bytes;
-  switch (fault_.kind) {
-    case FaultKind::silence:
-      return {};
-    case FaultKind::garbage: {
+  if (active_fault(FaultKind::silence) || active_fault(FaultKind::disconnect))
+    return {};
+  if (active_fault(FaultKind::garbage)) {
+    {
       // Line noise: random bytes in place of the message, ending with the
       // line end it would have had (whatever the dialect), so that the noise
       // arrives as one line and is read, and refused, as a reply.
@@ -102,12 +167,18 @@ std::string VirtualDevice::through_line(std::string bytes) {
           c = '#';
         noise += c;
       }
-      return noise + end;
+      bytes = noise + end;
     }
-    case FaultKind::partial_line:
-      return bytes.substr(0, bytes.size() / 2);
-    case FaultKind::none:
-      break;
+  } else if (active_fault(FaultKind::partial_line)) {
+    bytes = bytes.substr(0, bytes.size() / 2);
+  }
+  if (const FaultPlan* slow = active_fault(FaultKind::slow_replies)) {
+    // The message leaves the device late; later ones queue behind it.
+    auto due = clock_.now() + drivers::from_seconds(slow->delay_ms / 1000.0);
+    if (!delayed_.empty() && delayed_.back().first > due)
+      due = delayed_.back().first;
+    delayed_.emplace_back(due, std::move(bytes));
+    return {};
   }
   return bytes;
 }

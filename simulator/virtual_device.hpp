@@ -3,10 +3,13 @@
 // on the line.
 #pragma once
 
+#include <deque>
+#include <functional>
 #include <mutex>
 #include <optional>
 #include <random>
 #include <string>
+#include <vector>
 
 #include "drivers/clock.hpp"
 #include "drivers/memory_transport.hpp"
@@ -36,8 +39,25 @@ class VirtualDevice : public drivers::ByteDevice {
   /// Bytes on their way to the host, after the line fault (if one is on).
   std::string through_line(std::string bytes);
 
-  /// Switches a fault on from a moment of device time (or off with FaultKind::none).
-  void set_fault(FaultPlan plan) { fault_ = plan; }
+  /// Replaces every fault by this one, from a moment of device time (or
+  /// switches all off with FaultKind::none). Callable at run time.
+  void set_fault(FaultPlan plan);
+  /// Adds a fault beside those already planned (a dead electrode on a slow line).
+  void add_fault(FaultPlan plan);
+  /// Switches every fault off now.
+  void clear_faults() { set_fault(FaultPlan{}); }
+  /// The planned faults.
+  const std::vector<FaultPlan>& faults() const { return faults_; }
+  /// The active fault of a kind at the clock's present time, if any.
+  const FaultPlan* active_fault(FaultKind kind) const;
+  /// What a disconnect fault does: pulls the device's cable (the bench
+  /// closes its line). Without it, a disconnected device just falls silent.
+  void on_disconnect(std::function<void()> pull) { pull_cable_ = std::move(pull); }
+  /// True when a disconnect fault is active now; pulls the cable (once per
+  /// activation). Front ends call it before handing a request on.
+  bool cable_pulled();
+  /// Messages held back by a slow_replies fault that are due now, in order.
+  std::string release_delayed();
   /// Devices of one bench share their vessel's state: they answer one request
   /// at a time under this lock when hosts on several threads talk to them.
   void share_lock(std::mutex* bench_lock) { bench_lock_ = bench_lock; }
@@ -49,6 +69,12 @@ class VirtualDevice : public drivers::ByteDevice {
   /// override it. Called when one falls due.
   virtual drivers::protocol::Message reading() { return {}; }
 
+  /// Applies the sensor faults to a reading in place: dead freezes it at its
+  /// value when the fault began, spikes add +-size now and then
+  /// (default_spike when the plan gives no size). Returns false when the
+  /// reading is out of the meter's range (the caller refuses it).
+  bool sensor_faults(double& value, double default_spike);
+
   /// Starts streaming a reading every interval (0 stops), from now.
   void stream_every(drivers::Duration interval);
   bool streaming() const { return stream_interval_ > drivers::Duration::zero(); }
@@ -58,11 +84,15 @@ class VirtualDevice : public drivers::ByteDevice {
 
  private:
   std::string answer(std::string_view line);
-  bool fault_active() const;
   std::unique_lock<std::mutex> lock_bench();
 
   std::string pending_;
-  FaultPlan fault_;
+  std::vector<FaultPlan> faults_;
+  std::function<void()> pull_cable_;
+  bool pulled_ = false;
+  std::optional<double> dead_value_;
+  /// Messages delayed by slow_replies: when each is due and its bytes.
+  std::deque<std::pair<drivers::Duration, std::string>> delayed_;
   std::mutex* bench_lock_ = nullptr;
   drivers::Duration stream_interval_{0};
   drivers::Duration next_stream_{0};

@@ -23,6 +23,11 @@ class VirtualAuxiliaryDoser final : public VirtualDevice {
   /// Left in a reagent's bottle (mL).
   double reservoir_ml(drivers::Reagent reagent) const;
   bool moving() const;
+  /// Switches a motor fault on (from after_s of device time; the present
+  /// time for at once) or off (kind none) at run time. A motion under way
+  /// stops when the fault begins.
+  void set_motor_fault(MotorFault fault);
+  const MotorFault& motor_fault() const { return spec_.motor_fault; }
   const std::string& last_stop() const { return last_stop_; }
 
  protected:

@@ -1,41 +1,54 @@
 // A virtual metal-ion electrode with its meter: Nernstian response to the
-// free metal computed by the chemistry engine, temperature in the slope,
-// first-order response lag and seeded Gaussian noise.
+// free metal of the vessel's chemistry (simulator/vessel.hpp), temperature
+// in the slope, other metals by the Nikolsky-Eisenman equation, mixing and
+// slow complexation, first-order response lag, drift, seeded Gaussian noise
+// and the sensor faults; or a stored curve replayed.
 #pragma once
 
 #include <functional>
+#include <vector>
 
-#include "chemistry/one_to_one.hpp"
+#include "simulator/vessel.hpp"
 #include "simulator/virtual_device.hpp"
 
 namespace veq::simulator {
 
-/// The titration with the sample diluted by other liquid added to the
-/// vessel (mL, from the function; none if it is empty).
-chemistry::OneToOneTitration diluted(const chemistry::OneToOneTitration& t,
-                                     const std::function<double()>& other_liquid_ml);
-
 /// Nernst slope RT ln(10) / F in mV per decade at a temperature (°C), from the
 /// CODATA 2018 values of R and F.
 double nernst_slope_mv(double temperature_c);
+
+/// The Nikolsky-Eisenman equation, mV:
+///   E = E0 + (S / z_i) log10(a_i + sum_j K_ij a_j^(z_i / z_j))
+/// with S the slope in mV per decade, a the activities (mol/L), z the charges.
+double nikolsky_eisenman_mv(double e0_mv, double slope_mv, int charge, double log10_activity,
+                            const std::vector<double>& coefficients,
+                            const std::vector<int>& other_charges,
+                            const std::vector<double>& other_log10_activities);
 
 class VirtualElectrode final : public VirtualDevice {
  public:
   /// titrant_in_vessel_ml tells how much titrant has truly entered the vessel
   /// at the clock's present time (the burette's hidden truth).
   /// reaction_time_s: time constant of a slow complexation (0: instant).
-  VirtualElectrode(const ElectrodeSpec& spec, const chemistry::OneToOneTitration& chemistry,
-                   int metal_charge, double reaction_time_s, drivers::Clock& clock,
-                   std::uint64_t seed, std::function<double()> titrant_in_vessel_ml);
+  /// The vessel must be valid for the spec (metal and interferents known;
+  /// parse_scenario checks them).
+  VirtualElectrode(const ElectrodeSpec& spec, VesselModel vessel, double reaction_time_s,
+                   drivers::Clock& clock, std::uint64_t seed,
+                   std::function<double()> titrant_in_vessel_ml);
 
-  /// Noise-free equilibrium potential at a titrant volume in the vessel (mV).
+  /// Noise-free equilibrium potential at a titrant volume in the vessel with
+  /// the present other additions (mV).
   double equilibrium_potential_mv(double titrant_ml) const;
 
-  /// Other liquid added to the vessel (auxiliary reagents, mL), which dilutes
-  /// the sample; none unless set.
-  void set_other_liquid(std::function<double()> added_ml) {
-    other_liquid_ml_ = std::move(added_ml);
+  /// What else has entered the vessel (its titrant_ml is ignored): dilution,
+  /// blank metal, acid; nothing unless set.
+  void set_additions(std::function<VesselContent()> additions) {
+    additions_ = std::move(additions);
   }
+  /// Serves a stored curve instead of the chemistry: the potential is the
+  /// curve at the titrant in the vessel, without lag, noise or drift.
+  void set_replay(ReplaySpec replay) { replay_ = std::move(replay); }
+  const ElectrodeSpec& spec() const { return spec_; }
 
  protected:
   drivers::protocol::Message handle(const drivers::protocol::Message& request) override;
@@ -43,13 +56,19 @@ class VirtualElectrode final : public VirtualDevice {
 
  private:
   double lagged_potential_mv();
+  /// The reading with drift, noise and faults; false when out of range.
+  bool measure(double& potential_mv);
 
   ElectrodeSpec spec_;
-  chemistry::OneToOneTitration chemistry_;
-  int charge_;
+  mutable VesselModel vessel_;  // a cache of solved equilibria
+  int metal_ = 0;
+  std::vector<int> interferents_;
+  std::vector<double> coefficients_;
   double reaction_time_s_;
   std::function<double()> titrant_in_vessel_ml_;
-  std::function<double()> other_liquid_ml_;
+  std::function<VesselContent()> additions_;
+  ReplaySpec replay_;
+  double mixed_ml_ = 0.0;    ///< titrant that has reached the electrode (mixing), mL
   double reacted_ml_ = 0.0;  ///< titrant that has reacted so far (slow metals), mL
   bool started_ = false;
   double value_mv_ = 0.0;
