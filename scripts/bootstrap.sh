@@ -15,7 +15,7 @@ cd "$here"
 packages=(
   build-essential cmake ninja-build pkg-config git
   libgtest-dev libgmock-dev libbenchmark-dev
-  libsqlite3-dev sqlite3
+  libsqlite3-dev sqlite3 libssl-dev
   libboost-dev libeigen3-dev nlohmann-json3-dev libcli11-dev
   qt6-base-dev qt6-charts-dev libqt6opengl6-dev libxkbcommon-dev
   fonts-dejavu-core poppler-utils clang-format ccache
