@@ -9,6 +9,7 @@
 #include <utility>
 
 #include "common/version.hpp"
+#include "controller/store/sqlite_statement.hpp"
 
 namespace veq::store {
 
@@ -104,51 +105,97 @@ BEGIN SELECT RAISE(ABORT, 'run events cannot be changed'); END;
 CREATE TRIGGER run_events_are_undeletable BEFORE DELETE ON run_events
 BEGIN SELECT RAISE(ABORT, 'run events cannot be deleted'); END;
 )sql",
+    // 3: methods with their versions (a version used by a run is frozen),
+    // titrants with their titer history, electrode calibrations. History
+    // tables are append-only like the raw points.
+    R"sql(
+CREATE TABLE methods (
+  id INTEGER PRIMARY KEY,
+  name TEXT NOT NULL UNIQUE,
+  created_utc TEXT NOT NULL
+);
+CREATE TABLE method_versions (
+  method_id INTEGER NOT NULL REFERENCES methods(id),
+  version INTEGER NOT NULL CHECK (version >= 1),
+  text TEXT NOT NULL,
+  created_utc TEXT NOT NULL,
+  PRIMARY KEY (method_id, version)
+) WITHOUT ROWID;
+CREATE TABLE method_uses (
+  run_id INTEGER PRIMARY KEY REFERENCES runs(id),
+  method_id INTEGER NOT NULL,
+  version INTEGER NOT NULL,
+  recorded_utc TEXT NOT NULL,
+  FOREIGN KEY (method_id, version) REFERENCES method_versions(method_id, version)
+);
+CREATE INDEX method_uses_by_version ON method_uses(method_id, version);
+CREATE TRIGGER used_method_versions_are_unchangeable BEFORE UPDATE ON method_versions
+WHEN EXISTS (SELECT 1 FROM method_uses WHERE method_id = OLD.method_id AND version = OLD.version)
+BEGIN SELECT RAISE(ABORT, 'a method version used by a run cannot be changed'); END;
+CREATE TRIGGER used_method_versions_are_undeletable BEFORE DELETE ON method_versions
+WHEN EXISTS (SELECT 1 FROM method_uses WHERE method_id = OLD.method_id AND version = OLD.version)
+BEGIN SELECT RAISE(ABORT, 'a method version used by a run cannot be deleted'); END;
+CREATE TRIGGER method_uses_are_unchangeable BEFORE UPDATE ON method_uses
+BEGIN SELECT RAISE(ABORT, 'method uses cannot be changed'); END;
+CREATE TRIGGER method_uses_are_undeletable BEFORE DELETE ON method_uses
+BEGIN SELECT RAISE(ABORT, 'method uses cannot be deleted'); END;
+CREATE TABLE titrants (
+  id INTEGER PRIMARY KEY,
+  name TEXT NOT NULL UNIQUE,
+  nominal_conc_mol_per_l REAL NOT NULL CHECK (nominal_conc_mol_per_l > 0),
+  lot TEXT NOT NULL DEFAULT '',
+  prepared_utc TEXT NOT NULL DEFAULT '',
+  updated_utc TEXT NOT NULL
+);
+CREATE TABLE titers (
+  id INTEGER PRIMARY KEY,
+  titrant_id INTEGER NOT NULL REFERENCES titrants(id),
+  lot TEXT NOT NULL DEFAULT '',
+  conc_mol_per_l REAL NOT NULL,
+  rsd_percent REAL NOT NULL,
+  accepted INTEGER NOT NULL CHECK (accepted IN (0, 1)),
+  determined_utc TEXT NOT NULL,
+  expires_utc TEXT NOT NULL,
+  note TEXT NOT NULL DEFAULT '',
+  recorded_utc TEXT NOT NULL
+);
+CREATE INDEX titers_by_titrant ON titers(titrant_id);
+CREATE TABLE titer_determinations (
+  titer_id INTEGER NOT NULL REFERENCES titers(id),
+  idx INTEGER NOT NULL,
+  conc_mol_per_l REAL NOT NULL,
+  PRIMARY KEY (titer_id, idx)
+) WITHOUT ROWID;
+CREATE TRIGGER titers_are_unchangeable BEFORE UPDATE ON titers
+BEGIN SELECT RAISE(ABORT, 'titers cannot be changed'); END;
+CREATE TRIGGER titers_are_undeletable BEFORE DELETE ON titers
+BEGIN SELECT RAISE(ABORT, 'titers cannot be deleted'); END;
+CREATE TRIGGER titer_determinations_are_unchangeable BEFORE UPDATE ON titer_determinations
+BEGIN SELECT RAISE(ABORT, 'titer determinations cannot be changed'); END;
+CREATE TRIGGER titer_determinations_are_undeletable BEFORE DELETE ON titer_determinations
+BEGIN SELECT RAISE(ABORT, 'titer determinations cannot be deleted'); END;
+CREATE TABLE calibrations (
+  id INTEGER PRIMARY KEY,
+  electrode TEXT NOT NULL,
+  slope_mv_per_decade REAL NOT NULL,
+  e0_mv REAL NOT NULL,
+  temperature_c REAL NOT NULL,
+  accepted INTEGER NOT NULL CHECK (accepted IN (0, 1)),
+  measured_utc TEXT NOT NULL,
+  expires_utc TEXT NOT NULL,
+  recorded_utc TEXT NOT NULL
+);
+CREATE INDEX calibrations_by_electrode ON calibrations(electrode);
+CREATE TRIGGER calibrations_are_unchangeable BEFORE UPDATE ON calibrations
+BEGIN SELECT RAISE(ABORT, 'calibrations cannot be changed'); END;
+CREATE TRIGGER calibrations_are_undeletable BEFORE DELETE ON calibrations
+BEGIN SELECT RAISE(ABORT, 'calibrations cannot be deleted'); END;
+)sql",
 };
 constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
 static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");
 
-/// A prepared statement that finalizes itself.
-class Statement {
- public:
-  Statement(sqlite3* db, const char* sql) : db_(db) {
-    rc_ = sqlite3_prepare_v2(db, sql, -1, &stmt_, nullptr);
-  }
-  ~Statement() { sqlite3_finalize(stmt_); }
-  Statement(const Statement&) = delete;
-  Statement& operator=(const Statement&) = delete;
-
-  bool ok() const { return rc_ == SQLITE_OK; }
-  Statement& bind(int i, std::int64_t v) {
-    sqlite3_bind_int64(stmt_, i, v);
-    return *this;
-  }
-  Statement& bind(int i, int v) {
-    sqlite3_bind_int(stmt_, i, v);
-    return *this;
-  }
-  Statement& bind(int i, double v) {
-    sqlite3_bind_double(stmt_, i, v);
-    return *this;
-  }
-  Statement& bind(int i, const std::string& v) {
-    sqlite3_bind_text(stmt_, i, v.data(), static_cast<int>(v.size()), SQLITE_TRANSIENT);
-    return *this;
-  }
-  /// SQLITE_ROW, SQLITE_DONE or an error code.
-  int step() { return sqlite3_step(stmt_); }
-  std::int64_t integer(int col) const { return sqlite3_column_int64(stmt_, col); }
-  double real(int col) const { return sqlite3_column_double(stmt_, col); }
-  std::string text(int col) const {
-    const auto* p = sqlite3_column_text(stmt_, col);
-    return p ? std::string(reinterpret_cast<const char*>(p)) : std::string();
-  }
-
- private:
-  sqlite3* db_;
-  sqlite3_stmt* stmt_ = nullptr;
-  int rc_;
-};
+using detail::Statement;
 
 const char* kRunColumns =
     "id, sample_id, series, method_name, method_json, signal_kind, sample_volume_ml, "
@@ -178,6 +225,12 @@ RunRecord read_run(const Statement& s) {
 }
 
 }  // namespace
+
+const char* schema_migration_sql(int target) {
+  if (target < 1 || target > kMigrationCount)
+    return nullptr;
+  return kMigrations[target - 1];
+}
 
 const char* run_status_name(RunStatus status) {
   switch (status) {

@@ -4,6 +4,7 @@
 #include <memory>
 #include <string>
 
+#include "controller/store/method_store.hpp"
 #include "controller/store/run_store.hpp"
 
 struct sqlite3;
@@ -11,12 +12,12 @@ struct sqlite3;
 namespace veq::store {
 
 /// Schema version this build writes; older files are migrated on open.
-inline constexpr int kSchemaVersion = 2;
+inline constexpr int kSchemaVersion = 3;
 
 /// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
 std::string default_database_path();
 
-class SqliteStore final : public RunStore {
+class SqliteStore final : public RunStore, public MethodStore {
  public:
   /// Opens (creating if absent) and migrates a store. Refuses a file that is
   /// not a veq store, or that was written by a newer schema, without touching it.
@@ -43,6 +44,24 @@ class SqliteStore final : public RunStore {
   Result<void> record_event(std::int64_t run_id, const RunEvent& event) override;
   Result<std::vector<RunEvent>> load_events(std::int64_t run_id) override;
 
+  Result<MethodVersionRecord> save_method_version(const std::string& name,
+                                                  const std::string& text) override;
+  Result<void> replace_method_version(const std::string& name, int version,
+                                      const std::string& text) override;
+  Result<MethodVersionRecord> load_method_version(const std::string& name,
+                                                  int version = 0) override;
+  Result<std::vector<MethodVersionRecord>> list_method_versions(const std::string& name) override;
+  Result<std::vector<std::string>> list_method_names() override;
+  Result<void> record_method_use(std::int64_t run_id, const std::string& name,
+                                 int version) override;
+  Result<void> save_titrant(const TitrantRecord& titrant) override;
+  Result<TitrantRecord> load_titrant(const std::string& name) override;
+  Result<std::vector<TitrantRecord>> list_titrants() override;
+  Result<std::int64_t> add_titer(const TiterRecord& titer) override;
+  Result<std::vector<TiterRecord>> titer_history(const std::string& titrant) override;
+  Result<std::int64_t> add_calibration(const CalibrationRecord& calibration) override;
+  Result<std::vector<CalibrationRecord>> calibration_history(const std::string& electrode) override;
+
   /// Runs still marked running when the store was opened, now marked interrupted.
   int interrupted_on_open() const { return interrupted_on_open_; }
   const std::string& path() const { return path_; }
@@ -58,6 +77,10 @@ class SqliteStore final : public RunStore {
   std::string path_;
   int interrupted_on_open_ = 0;
 };
+
+/// The SQL of migration `target` (1-based: it brings schema target-1 to
+/// target), or nullptr. For tests that build a file of an older schema.
+const char* schema_migration_sql(int target);
 
 /// Current time as ISO 8601 UTC with milliseconds ("2026-12-02T01:48:22.123Z").
 std::string utc_now_iso8601();

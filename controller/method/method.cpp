@@ -1,0 +1,64 @@
+#include "controller/method/method.hpp"
+
+#include <type_traits>
+
+namespace veq::method {
+
+const char* indication_kind_name(IndicationKind kind) {
+  switch (kind) {
+    case IndicationKind::electrode:
+      return "electrode";
+    case IndicationKind::photometer:
+      return "photometer";
+  }
+  return "unknown";
+}
+
+std::vector<std::string_view> result_units() {
+  return {"mol/L", "mmol/L", "mg/L", "g/L"};
+}
+
+const char* step_kind_name(const Step& step) {
+  return std::visit(
+      [](const auto& s) -> const char* {
+        using T = std::decay_t<decltype(s)>;
+        if constexpr (std::is_same_v<T, AddReagentStep>)
+          return "add reagent";
+        else if constexpr (std::is_same_v<T, AdjustPhStep>)
+          return "adjust ph";
+        else if constexpr (std::is_same_v<T, WaitStep>)
+          return "wait";
+        else if constexpr (std::is_same_v<T, AddTitrantStep>)
+          return "add titrant";
+        else if constexpr (std::is_same_v<T, BackTitrateStep>)
+          return "back titrate";
+        else if constexpr (std::is_same_v<T, TitrateStep>)
+          return "titrate";
+        else if constexpr (std::is_same_v<T, EvaluateStep>)
+          return "evaluate";
+        else
+          return "rinse";
+      },
+      step);
+}
+
+std::vector<std::string_view> step_kind_names() {
+  return {"add reagent", "adjust ph",    "wait",     "add titrant",
+          "titrate",     "back titrate", "evaluate", "rinse"};
+}
+
+// These mirror controller/dosing.hpp (dosing_kind_name and to_json(DosingPlan));
+// the method library sits below the controller, so it keeps its own copy and a
+// test checks that the controller accepts every one of them.
+std::vector<std::string_view> dosing_strategy_names() {
+  return {"fixed increments", "adaptive increments", "approach preset signal", "model guided"};
+}
+
+std::vector<std::string_view> dosing_option_names() {
+  return {"increment_ml",         "smallest_step_ml", "largest_step_ml",
+          "target_signal_step",   "largest_growth",   "preset_signal",
+          "preset_tolerance",     "hold_s",           "required_uncertainty_ml",
+          "points_past_endpoint", "endpoint_zone_ml"};
+}
+
+}  // namespace veq::method

@@ -1,0 +1,885 @@
+#include "controller/method/method_file.hpp"
+
+#include <algorithm>
+#include <cctype>
+#include <charconv>
+#include <cmath>
+#include <fstream>
+#include <map>
+#include <optional>
+#include <sstream>
+#include <utility>
+#include <vector>
+
+#include "detection/crossing.hpp"
+#include "detection/derivative.hpp"
+#include "detection/evaluate.hpp"
+#include "detection/gran.hpp"
+#include "detection/model_fit.hpp"
+#include "detection/segments.hpp"
+
+namespace veq::method {
+
+namespace {
+
+using nlohmann::json;
+
+std::string trim(std::string_view s) {
+  std::size_t b = 0;
+  std::size_t e = s.size();
+  while (b < e && std::isspace(static_cast<unsigned char>(s[b])))
+    ++b;
+  while (e > b && std::isspace(static_cast<unsigned char>(s[e - 1])))
+    --e;
+  return std::string(s.substr(b, e - b));
+}
+
+std::string lower(std::string s) {
+  for (char& c : s)
+    c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return s;
+}
+
+/// Lower case, runs of blanks folded to one space: "Largest  Volume" -> "largest volume".
+std::string normal_key(std::string_view key) {
+  std::string out;
+  bool blank = false;
+  for (char c : trim(key)) {
+    if (std::isspace(static_cast<unsigned char>(c))) {
+      blank = true;
+      continue;
+    }
+    if (blank && !out.empty())
+      out += ' ';
+    blank = false;
+    out += static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  }
+  return out;
+}
+
+std::string join(const std::vector<std::string_view>& names) {
+  std::string out;
+  for (auto n : names) {
+    if (!out.empty())
+      out += ", ";
+    out += n;
+  }
+  return out;
+}
+
+/// Shortest text that reads back as the same double.
+std::string number(double v) {
+  char buffer[64];
+  auto [end, ec] = std::to_chars(buffer, buffer + sizeof buffer, v);
+  return ec == std::errc() ? std::string(buffer, end) : std::string("nan");
+}
+
+/// One text line for a text field (a method file holds one value per line).
+std::string one_line(const std::string& s) {
+  std::string out = s;
+  std::replace(out.begin(), out.end(), '\n', ' ');
+  std::replace(out.begin(), out.end(), '\r', ' ');
+  return trim(out);
+}
+
+struct Unit {
+  std::string_view name;
+  double factor;  ///< to the base unit of the quantity
+};
+
+// Base units: mL, s, rpm, g/mol, signal units per minute, none.
+const std::vector<Unit> kVolume = {{"mL", 1.0}, {"uL", 1e-3}, {"µL", 1e-3}, {"L", 1000.0}};
+const std::vector<Unit> kTime = {{"s", 1.0}, {"min", 60.0}, {"h", 3600.0}};
+const std::vector<Unit> kSpeed = {{"rpm", 1.0}};
+const std::vector<Unit> kMolarMass = {{"g/mol", 1.0}};
+const std::vector<Unit> kDrift = {{"mV/min", 1.0}, {"per min", 1.0}};
+const std::vector<Unit> kNone = {{"", 1.0}};
+
+std::string unit_list(const std::vector<Unit>& units) {
+  std::string out;
+  for (const auto& u : units) {
+    if (!out.empty())
+      out += ", ";
+    out += u.name.empty() ? "no unit" : std::string(u.name);
+  }
+  return out;
+}
+
+struct Entry {
+  std::string key;
+  std::string value;
+  int line = 0;
+  bool used = false;
+};
+
+struct Section {
+  std::string name;
+  int line = 0;
+  std::vector<Entry> entries;
+};
+
+/// Lines of a parsed file, for the checks between sections.
+struct Lines {
+  std::vector<int> step;                             ///< section line of each step
+  std::vector<std::map<std::string, int>> step_key;  ///< line of each key of each step
+  std::vector<int> titrant;
+  std::vector<int> reagent;
+  int end = 0;  ///< last line of the file
+  int field(std::size_t i, const std::string& key) const {
+    if (i < step_key.size()) {
+      auto it = step_key[i].find(key);
+      if (it != step_key[i].end())
+        return it->second;
+    }
+    return i < step.size() ? step[i] : end;
+  }
+};
+
+/// Keeps the first error; later reads return defaults and add nothing.
+class Errors {
+ public:
+  explicit Errors(std::string origin) : origin_(std::move(origin)) {}
+  void add(int line, const std::string& field, const std::string& message) {
+    if (error_)
+      return;
+    error_ = make_error(ErrorKind::invalid_input, origin_ + ": line " + std::to_string(line) +
+                                                      ", field '" + field + "': " + message);
+  }
+  bool failed() const { return error_.has_value(); }
+  const Error& error() const { return *error_; }
+
+ private:
+  std::string origin_;
+  std::optional<Error> error_;
+};
+
+/// Reads the keys of one section; each read marks its key used.
+class Reader {
+ public:
+  Reader(Section& section, Errors& errors, std::string what)
+      : section_(section), errors_(errors), what_(std::move(what)) {}
+
+  Entry* find(const std::string& key) {
+    for (auto& e : section_.entries) {
+      if (e.key == key) {
+        e.used = true;
+        return &e;
+      }
+    }
+    return nullptr;
+  }
+
+  int line_of(const std::string& key) const {
+    for (const auto& e : section_.entries)
+      if (e.key == key)
+        return e.line;
+    return section_.line;
+  }
+
+  void missing(const std::string& key) {
+    errors_.add(section_.line, key,
+                "missing in the " + what_ + " starting at line " + std::to_string(section_.line));
+  }
+
+  std::string text(const std::string& key, std::optional<std::string> fallback = std::nullopt) {
+    Entry* e = find(key);
+    if (!e) {
+      if (!fallback)
+        missing(key);
+      return fallback.value_or("");
+    }
+    if (e->value.empty() && !(fallback && fallback->empty()))
+      errors_.add(e->line, key, "has no value");
+    return e->value;
+  }
+
+  /// A value out of a fixed list of names.
+  std::string choice(const std::string& key, const std::vector<std::string_view>& names,
+                     std::optional<std::string> fallback = std::nullopt) {
+    Entry* e = find(key);
+    if (!e) {
+      if (!fallback)
+        missing(key);
+      return fallback.value_or("");
+    }
+    const std::string wanted = normal_key(e->value);
+    for (auto n : names)
+      if (normal_key(n) == wanted)
+        return std::string(n);
+    errors_.add(e->line, key, "unknown value '" + e->value + "' (known: " + join(names) + ")");
+    return fallback.value_or("");
+  }
+
+  bool yes_no(const std::string& key, bool fallback) {
+    Entry* e = find(key);
+    if (!e)
+      return fallback;
+    const std::string v = lower(e->value);
+    if (v == "yes")
+      return true;
+    if (v == "no")
+      return false;
+    errors_.add(e->line, key, "must be yes or no, not '" + e->value + "'");
+    return fallback;
+  }
+
+  int integer(const std::string& key, int lowest, int highest, std::optional<int> fallback) {
+    Entry* e = find(key);
+    if (!e) {
+      if (!fallback)
+        missing(key);
+      return fallback.value_or(lowest);
+    }
+    int v = 0;
+    const char* first = e->value.data();
+    const char* last = first + e->value.size();
+    auto [ptr, ec] = std::from_chars(first, last, v);
+    if (ec != std::errc() || ptr != last) {
+      errors_.add(e->line, key, "'" + e->value + "' is not a whole number");
+      return fallback.value_or(lowest);
+    }
+    if (v < lowest || v > highest) {
+      errors_.add(e->line, key,
+                  std::to_string(v) + " is out of range (" + std::to_string(lowest) + " to " +
+                      std::to_string(highest) + ")");
+    }
+    return v;
+  }
+
+  /// A number and its unit, converted to the base unit; checked against
+  /// [lowest, highest] in the base unit (`open_low`: lowest itself excluded).
+  double quantity(const std::string& key, const std::vector<Unit>& units, double lowest,
+                  double highest, std::optional<double> fallback, bool open_low = false) {
+    Entry* e = find(key);
+    if (!e) {
+      if (!fallback)
+        missing(key);
+      return fallback.value_or(0.0);
+    }
+    auto v = parse_quantity(e->value, e->line, key, units);
+    if (!v)
+      return fallback.value_or(0.0);
+    check_range(*v, e->line, key, lowest, highest, open_low, units);
+    return *v;
+  }
+
+  std::optional<double> parse_quantity(const std::string& value, int line, const std::string& key,
+                                       const std::vector<Unit>& units) {
+    const std::string v = trim(value);
+    double x = 0.0;
+    const char* first = v.data();
+    const char* last = first + v.size();
+    auto [ptr, ec] = std::from_chars(first, last, x, std::chars_format::general);
+    if (ec != std::errc() || ptr == first) {
+      errors_.add(line, key, "'" + value + "' does not start with a number");
+      return std::nullopt;
+    }
+    if (!std::isfinite(x)) {
+      errors_.add(line, key, "'" + value + "' is not a finite number");
+      return std::nullopt;
+    }
+    const std::string unit =
+        lower(normal_key(std::string_view(ptr, static_cast<std::size_t>(last - ptr))));
+    for (const auto& u : units)
+      if (lower(std::string(u.name)) == unit)
+        return x * u.factor;
+    errors_.add(line, key,
+                unit.empty()
+                    ? "'" + value + "' needs a unit (" + unit_list(units) + ")"
+                    : "wrong unit '" +
+                          trim(std::string_view(ptr, static_cast<std::size_t>(last - ptr))) +
+                          "' (expected " + unit_list(units) + ")");
+    return std::nullopt;
+  }
+
+  void check_range(double v, int line, const std::string& key, double lowest, double highest,
+                   bool open_low, const std::vector<Unit>& units) {
+    if (v < lowest || v > highest || (open_low && v == lowest)) {
+      const std::string base =
+          units.front().name.empty() ? "" : " " + std::string(units.front().name);
+      errors_.add(line, key,
+                  number(v) + base + " is out of range (" + (open_low ? "above " : "") +
+                      number(lowest) + " to " + number(highest) + base + ")");
+    }
+  }
+
+  json json_object(const std::string& key) {
+    Entry* e = find(key);
+    if (!e)
+      return json::object();
+    json j = json::parse(e->value, nullptr, false);
+    if (j.is_discarded() || !j.is_object()) {
+      errors_.add(e->line, key,
+                  "must be a JSON object on one line, such as {\"smallest_step_ml\": 0.01}");
+      return json::object();
+    }
+    return j;
+  }
+
+  /// Every key not read is unknown here.
+  void finish(const std::vector<std::string_view>& known) {
+    for (const auto& e : section_.entries) {
+      if (!e.used)
+        errors_.add(e.line, e.key, "unknown key in the " + what_ + " (known: " + join(known) + ")");
+    }
+  }
+
+  Errors& errors() { return errors_; }
+
+ private:
+  Section& section_;
+  Errors& errors_;
+  std::string what_;
+};
+
+TitrateStep read_titration(Reader& r) {
+  TitrateStep t;
+  t.titrant = r.text("titrant");
+  t.dosing = r.choice("dosing", dosing_strategy_names());
+  t.dosing_options = r.json_object("dosing options");
+  const auto known = dosing_option_names();
+  for (auto it = t.dosing_options.begin(); it != t.dosing_options.end(); ++it) {
+    const int line = r.line_of("dosing options");
+    if (std::find(known.begin(), known.end(), it.key()) == known.end()) {
+      r.errors().add(line, "dosing options",
+                     "unknown option '" + it.key() + "' (known: " + join(known) + ")");
+    } else if (!it->is_number() || !std::isfinite(it->get<double>())) {
+      r.errors().add(line, "dosing options", "option '" + it.key() + "' must be a number");
+    } else if (it.key() != "preset_signal" && !(it->get<double>() > 0.0)) {
+      r.errors().add(line, "dosing options", "option '" + it.key() + "' must be above 0");
+    }
+  }
+  t.initial_volume_ml = r.quantity("initial volume", kVolume, 0.0, 1000.0, 0.0);
+  t.largest_volume_ml = r.quantity("largest volume", kVolume, 0.0, 1000.0, std::nullopt, true);
+  t.volume_past_endpoint_ml = r.quantity("volume past endpoint", kVolume, 0.0, 100.0, 1.0);
+  t.time_limit_s = r.quantity("time limit", kTime, 0.0, 86400.0, 3600.0, true);
+  t.drift_limit_per_min = r.quantity("drift limit", kDrift, 0.0, 1000.0, 1.0, true);
+  t.settling_window_s = r.quantity("settling window", kTime, 0.0, 600.0, 10.0, true);
+  t.shortest_wait_s = r.quantity("shortest wait", kTime, 0.0, 3600.0, 3.0);
+  t.longest_wait_s = r.quantity("longest wait", kTime, 0.0, 3600.0, 60.0, true);
+  if (t.initial_volume_ml >= t.largest_volume_ml && t.largest_volume_ml > 0.0)
+    r.errors().add(r.line_of("initial volume"), "initial volume",
+                   "must be below the largest volume (" + number(t.largest_volume_ml) + " mL)");
+  if (t.shortest_wait_s > t.longest_wait_s)
+    r.errors().add(r.line_of("shortest wait"), "shortest wait",
+                   "must not exceed the longest wait (" + number(t.longest_wait_s) + " s)");
+  return t;
+}
+
+const std::vector<std::string_view> kTitrateKeys = {"kind",
+                                                    "titrant",
+                                                    "dosing",
+                                                    "dosing options",
+                                                    "initial volume",
+                                                    "largest volume",
+                                                    "volume past endpoint",
+                                                    "time limit",
+                                                    "drift limit",
+                                                    "settling window",
+                                                    "shortest wait",
+                                                    "longest wait"};
+
+std::optional<Step> read_step(Reader& r) {
+  const std::string kind = r.choice("kind", step_kind_names());
+  if (r.errors().failed())
+    return std::nullopt;
+  if (kind == "add reagent") {
+    AddReagentStep s;
+    s.reagent = r.text("reagent");
+    s.volume_ml = r.quantity("volume", kVolume, 0.0, 1000.0, std::nullopt, true);
+    r.finish({"kind", "reagent", "volume"});
+    return s;
+  }
+  if (kind == "adjust ph") {
+    AdjustPhStep s;
+    s.target_ph = r.quantity("target", kNone, 0.0, 14.0, std::nullopt);
+    s.tolerance_ph = r.quantity("tolerance", kNone, 0.0, 2.0, std::nullopt, true);
+    s.acid = r.text("acid", "");
+    s.base = r.text("base", "");
+    s.largest_total_volume_ml =
+        r.quantity("largest total volume", kVolume, 0.0, 1000.0, std::nullopt, true);
+    if (s.acid.empty() && s.base.empty() && !r.errors().failed())
+      r.missing("acid");  // one of acid or base is needed
+    r.finish({"kind", "target", "tolerance", "acid", "base", "largest total volume"});
+    return s;
+  }
+  if (kind == "wait") {
+    WaitStep s;
+    s.duration_s = r.quantity("duration", kTime, 0.0, 86400.0, std::nullopt, true);
+    s.stirrer_rpm = r.quantity("stirrer speed", kSpeed, 0.0, 5000.0, 0.0);
+    r.finish({"kind", "duration", "stirrer speed"});
+    return s;
+  }
+  if (kind == "add titrant") {
+    AddTitrantStep s;
+    s.titrant = r.text("titrant");
+    s.volume_ml = r.quantity("volume", kVolume, 0.0, 1000.0, std::nullopt, true);
+    r.finish({"kind", "titrant", "volume"});
+    return s;
+  }
+  if (kind == "titrate") {
+    TitrateStep s = read_titration(r);
+    r.finish(kTitrateKeys);
+    return s;
+  }
+  if (kind == "back titrate") {
+    BackTitrateStep s;
+    static_cast<TitrateStep&>(s) = read_titration(r);
+    r.finish(kTitrateKeys);
+    return s;
+  }
+  if (kind == "evaluate") {
+    EvaluateStep s;
+    std::vector<std::string_view> methods(detection::method_names().begin(),
+                                          detection::method_names().end());
+    s.endpoint_method = r.choice("endpoint method", methods);
+    s.options = r.json_object("options");
+    if (!r.errors().failed()) {
+      Result<void> checked;
+      auto check = [&](auto parsed) {
+        if (!parsed)
+          checked = parsed.error();
+      };
+      if (s.endpoint_method == "derivative")
+        check(detection::derivative_options_from_json(s.options));
+      else if (s.endpoint_method == "segments")
+        check(detection::segments_options_from_json(s.options));
+      else if (s.endpoint_method == "crossing")
+        check(detection::crossing_options_from_json(s.options));
+      else if (s.endpoint_method == "gran")
+        check(detection::gran_options_from_json(s.options));
+      else if (s.endpoint_method == "model")
+        check(detection::model_fit_options_from_json(s.options));
+      if (!checked)
+        r.errors().add(r.line_of("options"), "options", checked.error().message);
+    }
+    if (Entry* e = r.find("expected endpoint")) {
+      const auto at = e->value.find(" to ");
+      if (at == std::string::npos) {
+        r.errors().add(e->line, "expected endpoint",
+                       "must be a range such as '2 to 15 mL', not '" + e->value + "'");
+      } else {
+        // The unit follows the second number; the first may carry it too.
+        std::string from_text = trim(e->value.substr(0, at));
+        const std::string to_text = trim(e->value.substr(at + 4));
+        const auto unit_at = to_text.find_first_not_of("0123456789.+-eE");
+        const std::string unit = unit_at == std::string::npos ? "" : to_text.substr(unit_at);
+        if (from_text.find_first_not_of("0123456789.+-eE") == std::string::npos)
+          from_text += " " + unit;
+        auto from = r.parse_quantity(from_text, e->line, "expected endpoint", kVolume);
+        auto to = r.parse_quantity(to_text, e->line, "expected endpoint", kVolume);
+        if (from && to) {
+          s.expected_from_ml = *from;
+          s.expected_to_ml = *to;
+          if (*from < 0.0 || *to <= *from) {
+            r.errors().add(e->line, "expected endpoint",
+                           "the range must start at 0 mL or above and end above its start");
+          }
+        }
+      }
+    } else {
+      r.missing("expected endpoint");
+    }
+    r.finish({"kind", "endpoint method", "options", "expected endpoint"});
+    return s;
+  }
+  RinseStep s;
+  s.liquid = r.text("liquid", "water");
+  s.volume_ml = r.quantity("volume", kVolume, 0.0, 1000.0, 10.0, true);
+  s.times = r.integer("times", 1, 10, 1);
+  r.finish({"kind", "liquid", "volume", "times"});
+  return s;
+}
+
+/// Checks between sections and the order of steps; `lines` locates errors.
+void check_structure(const Method& m, const Lines& lines, Errors& errors) {
+  auto titrant_known = [&](const std::string& name) {
+    return std::any_of(m.titrants.begin(), m.titrants.end(),
+                       [&](const TitrantUse& t) { return t.name == name; });
+  };
+  auto reagent_known = [&](const std::string& name) {
+    return std::any_of(m.reagents.begin(), m.reagents.end(),
+                       [&](const ReagentUse& r) { return r.name == name; });
+  };
+  for (std::size_t i = 0; i < m.titrants.size(); ++i) {
+    for (std::size_t j = 0; j < i; ++j) {
+      const int line = i < lines.titrant.size() ? lines.titrant[i] : lines.end;
+      if (m.titrants[j].name == m.titrants[i].name)
+        errors.add(line, "name", "titrant '" + m.titrants[i].name + "' is listed twice");
+      else if (m.titrants[j].burette == m.titrants[i].burette)
+        errors.add(line, "burette",
+                   "burette '" + m.titrants[i].burette + "' already holds titrant '" +
+                       m.titrants[j].name + "'");
+    }
+  }
+  for (std::size_t i = 0; i < m.reagents.size(); ++i) {
+    for (std::size_t j = 0; j < i; ++j) {
+      if (m.reagents[j].name == m.reagents[i].name) {
+        const int line = i < lines.reagent.size() ? lines.reagent[i] : lines.end;
+        errors.add(line, "name", "reagent '" + m.reagents[i].name + "' is listed twice");
+      }
+    }
+  }
+
+  // Step indices, kNoStep if none (std::optional<size_t> trips GCC 12's
+  // maybe-uninitialized warning here).
+  constexpr std::size_t kNoStep = static_cast<std::size_t>(-1);
+  std::size_t unevaluated = kNoStep;  // a titration waiting for its evaluate step
+  std::size_t excess = kNoStep;       // an add titrant step not yet titrated back
+  std::string excess_titrant;
+  double largest_volume_ml = 0.0;
+  bool any_titration = false;
+  for (std::size_t i = 0; i < m.steps.size(); ++i) {
+    const Step& step = m.steps[i];
+    auto at = [&](const std::string& key) { return lines.field(i, key); };
+    if (const auto* s = std::get_if<AddReagentStep>(&step)) {
+      if (!reagent_known(s->reagent))
+        errors.add(at("reagent"), "reagent",
+                   "reagent '" + s->reagent + "' is not listed in a [reagent] section");
+    } else if (const auto* s = std::get_if<AdjustPhStep>(&step)) {
+      if (!s->acid.empty() && !reagent_known(s->acid))
+        errors.add(at("acid"), "acid",
+                   "reagent '" + s->acid + "' is not listed in a [reagent] section");
+      if (!s->base.empty() && !reagent_known(s->base))
+        errors.add(at("base"), "base",
+                   "reagent '" + s->base + "' is not listed in a [reagent] section");
+    } else if (const auto* s = std::get_if<AddTitrantStep>(&step)) {
+      if (!titrant_known(s->titrant))
+        errors.add(at("titrant"), "titrant",
+                   "titrant '" + s->titrant + "' is not listed in a [titrant] section");
+      if (excess != kNoStep)
+        errors.add(at("kind"), "kind",
+                   "an excess was already added at line " +
+                       std::to_string(lines.field(excess, "kind")) +
+                       " and is not yet titrated back");
+      excess = i;
+      excess_titrant = s->titrant;
+    } else if (const auto* s = std::get_if<TitrateStep>(&step)) {
+      // BackTitrateStep is its own alternative of Step, so this is a plain titration.
+      if (!titrant_known(s->titrant))
+        errors.add(at("titrant"), "titrant",
+                   "titrant '" + s->titrant + "' is not listed in a [titrant] section");
+      if (unevaluated != kNoStep)
+        errors.add(at("kind"), "kind",
+                   "the titration at line " + std::to_string(lines.field(unevaluated, "kind")) +
+                       " is not evaluated before this one");
+      if (excess != kNoStep)
+        errors.add(at("kind"), "kind",
+                   "the excess added at line " + std::to_string(lines.field(excess, "kind")) +
+                       " must be titrated back (kind = back titrate) before another titration");
+      unevaluated = i;
+      largest_volume_ml = s->largest_volume_ml;
+      any_titration = true;
+    } else if (const auto* s = std::get_if<BackTitrateStep>(&step)) {
+      if (!titrant_known(s->titrant))
+        errors.add(at("titrant"), "titrant",
+                   "titrant '" + s->titrant + "' is not listed in a [titrant] section");
+      if (unevaluated != kNoStep)
+        errors.add(at("kind"), "kind",
+                   "the titration at line " + std::to_string(lines.field(unevaluated, "kind")) +
+                       " is not evaluated before this one");
+      if (excess == kNoStep) {
+        errors.add(at("kind"), "kind",
+                   "a back titration needs an excess added before it (kind = add titrant)");
+      } else if (excess_titrant == s->titrant) {
+        errors.add(at("titrant"), "titrant",
+                   "a back titration needs another titrant than the excess ('" + s->titrant + "')");
+      }
+      excess = kNoStep;
+      unevaluated = i;
+      largest_volume_ml = s->largest_volume_ml;
+      any_titration = true;
+    } else if (const auto* s = std::get_if<EvaluateStep>(&step)) {
+      if (unevaluated == kNoStep) {
+        errors.add(at("kind"), "kind",
+                   any_titration ? "evaluate follows no titration of its own (the titration "
+                                   "before is already evaluated)"
+                                 : "evaluate comes before any titration");
+      } else if (s->expected_to_ml > largest_volume_ml) {
+        errors.add(at("expected endpoint"), "expected endpoint",
+                   "the range ends at " + number(s->expected_to_ml) +
+                       " mL, beyond the titration's largest volume (" + number(largest_volume_ml) +
+                       " mL)");
+      }
+      unevaluated = kNoStep;
+    }
+  }
+  if (!any_titration)
+    errors.add(lines.end, "kind", "the method has no titrate step");
+  if (unevaluated != kNoStep)
+    errors.add(lines.field(unevaluated, "kind"), "kind",
+               "this titration is never evaluated (add an evaluate step after it)");
+  if (excess != kNoStep)
+    errors.add(lines.field(excess, "kind"), "kind",
+               "the excess added here is never titrated back (add a back titrate step)");
+}
+
+}  // namespace
+
+Result<Method> parse_method(std::string_view text, const std::string& origin) {
+  Errors errors(origin);
+  std::vector<Section> sections;
+  int line_no = 0;
+  std::size_t pos = 0;
+  while (pos < text.size()) {
+    std::size_t end = text.find('\n', pos);
+    if (end == std::string_view::npos)
+      end = text.size();
+    const std::string line = trim(text.substr(pos, end - pos));
+    pos = end + 1;
+    ++line_no;
+    if (line.empty() || line.front() == '#')
+      continue;
+    if (line.front() == '[') {
+      if (line.back() != ']') {
+        errors.add(line_no, line, "a section header must end with ']'");
+        break;
+      }
+      const std::string name = normal_key(line.substr(1, line.size() - 2));
+      static const std::vector<std::string_view> kSections = {"method",     "titrant", "reagent",
+                                                              "indication", "result",  "step"};
+      if (std::find(kSections.begin(), kSections.end(), name) == kSections.end()) {
+        errors.add(line_no, name,
+                   "unknown section [" + name + "] (known: " + join(kSections) + ")");
+        break;
+      }
+      sections.push_back(Section{name, line_no, {}});
+      continue;
+    }
+    const auto eq = line.find('=');
+    if (eq == std::string::npos) {
+      errors.add(line_no, line, "expected 'key = value' or a [section] header");
+      break;
+    }
+    const std::string key = normal_key(line.substr(0, eq));
+    if (sections.empty()) {
+      errors.add(line_no, key, "comes before any [section] header");
+      break;
+    }
+    for (const auto& e : sections.back().entries) {
+      if (e.key == key)
+        errors.add(line_no, key,
+                   "given twice in this section (first at line " + std::to_string(e.line) + ")");
+    }
+    sections.back().entries.push_back(Entry{key, trim(line.substr(eq + 1)), line_no, false});
+  }
+  if (errors.failed())
+    return errors.error();
+
+  Method m;
+  Lines lines;
+  lines.end = line_no;
+  bool have_method = false;
+  bool have_indication = false;
+  bool have_result = false;
+  for (auto& section : sections) {
+    auto once = [&](bool& seen) {
+      if (seen)
+        errors.add(section.line, section.name,
+                   "the [" + section.name + "] section may appear only once");
+      seen = true;
+    };
+    if (section.name == "method") {
+      once(have_method);
+      Reader r(section, errors, "[method] section");
+      m.name = r.text("name");
+      m.version = r.integer("version", 1, 1000000, 1);
+      m.description = r.text("description", "");
+      m.replicates = r.integer("replicates", 1, 20, 1);
+      r.finish({"name", "version", "description", "replicates"});
+    } else if (section.name == "titrant") {
+      Reader r(section, errors, "[titrant] section");
+      TitrantUse t;
+      t.name = r.text("name");
+      t.burette = r.text("burette");
+      r.finish({"name", "burette"});
+      m.titrants.push_back(t);
+      lines.titrant.push_back(section.line);
+    } else if (section.name == "reagent") {
+      Reader r(section, errors, "[reagent] section");
+      ReagentUse t;
+      t.name = r.text("name");
+      t.doser = r.text("doser");
+      r.finish({"name", "doser"});
+      m.reagents.push_back(t);
+      lines.reagent.push_back(section.line);
+    } else if (section.name == "indication") {
+      once(have_indication);
+      Reader r(section, errors, "[indication] section");
+      const std::string kind = r.choice("kind", {"electrode", "photometer"});
+      m.indication.kind =
+          kind == "photometer" ? IndicationKind::photometer : IndicationKind::electrode;
+      m.indication.name = r.text("name");
+      m.indication.needs_calibration = r.yes_no("needs calibration", true);
+      r.finish({"kind", "name", "needs calibration"});
+    } else if (section.name == "result") {
+      once(have_result);
+      Reader r(section, errors, "[result] section");
+      ResultRule& res = m.result;
+      res.analyte = r.text("analyte");
+      res.molar_mass_g_per_mol =
+          r.quantity("molar mass", kMolarMass, 0.0, 1000.0, std::nullopt, true);
+      res.analyte_per_titrant = r.quantity("analyte per titrant", kNone, 0.0, 10.0, 1.0, true);
+      res.unit = r.choice("unit", result_units());
+      const std::vector<Unit> result_unit = {{res.unit, 1.0}};
+      for (const char* key : {"lowest", "highest"}) {
+        if (Entry* e = r.find(key)) {
+          auto v = r.parse_quantity(e->value, e->line, key, result_unit);
+          if (v)
+            (std::string(key) == "lowest" ? res.lowest : res.highest) = *v;
+        }
+      }
+      if (res.lowest && res.highest && *res.highest <= *res.lowest)
+        errors.add(r.line_of("highest"), "highest", "must be above lowest");
+      if (Entry* e = r.find("largest replicate difference")) {
+        const std::vector<Unit> either = {{"%", 1.0}, {res.unit, 1.0}};
+        auto v = r.parse_quantity(e->value, e->line, e->key, either);
+        if (v) {
+          res.replicate_difference_relative = e->value.find('%') != std::string::npos;
+          res.largest_replicate_difference = *v;
+          if (!(*v > 0.0))
+            errors.add(e->line, e->key, "must be above 0");
+        }
+      }
+      r.finish({"analyte", "molar mass", "analyte per titrant", "unit", "lowest", "highest",
+                "largest replicate difference"});
+    } else {
+      Reader r(section, errors, "step");
+      auto step = read_step(r);
+      if (step) {
+        m.steps.push_back(std::move(*step));
+        lines.step.push_back(section.line);
+        std::map<std::string, int> keys;
+        for (const auto& e : section.entries)
+          keys[e.key] = e.line;
+        lines.step_key.push_back(std::move(keys));
+      }
+    }
+    if (errors.failed())
+      return errors.error();
+  }
+  if (!have_method)
+    errors.add(lines.end, "method", "the file has no [method] section");
+  if (!have_indication)
+    errors.add(lines.end, "indication", "the file has no [indication] section");
+  if (!have_result)
+    errors.add(lines.end, "result", "the file has no [result] section");
+  if (m.titrants.empty())
+    errors.add(lines.end, "titrant", "the file has no [titrant] section");
+  if (errors.failed())
+    return errors.error();
+  check_structure(m, lines, errors);
+  if (errors.failed())
+    return errors.error();
+  return m;
+}
+
+std::string write_method(const Method& m) {
+  std::ostringstream out;
+  auto put = [&](const char* key, const std::string& value) {
+    out << key << " = " << value << "\n";
+  };
+  out << "# veq method file (docs/methods.md)\n";
+  out << "[method]\n";
+  put("name", one_line(m.name));
+  put("version", std::to_string(m.version));
+  put("description", one_line(m.description));
+  put("replicates", std::to_string(m.replicates));
+  for (const auto& t : m.titrants) {
+    out << "\n[titrant]\n";
+    put("name", one_line(t.name));
+    put("burette", one_line(t.burette));
+  }
+  for (const auto& r : m.reagents) {
+    out << "\n[reagent]\n";
+    put("name", one_line(r.name));
+    put("doser", one_line(r.doser));
+  }
+  out << "\n[indication]\n";
+  put("kind", indication_kind_name(m.indication.kind));
+  put("name", one_line(m.indication.name));
+  put("needs calibration", m.indication.needs_calibration ? "yes" : "no");
+  const ResultRule& res = m.result;
+  out << "\n[result]\n";
+  put("analyte", one_line(res.analyte));
+  put("molar mass", number(res.molar_mass_g_per_mol) + " g/mol");
+  put("analyte per titrant", number(res.analyte_per_titrant));
+  put("unit", res.unit);
+  if (res.lowest)
+    put("lowest", number(*res.lowest) + " " + res.unit);
+  if (res.highest)
+    put("highest", number(*res.highest) + " " + res.unit);
+  if (res.largest_replicate_difference) {
+    put("largest replicate difference",
+        number(*res.largest_replicate_difference) + " " +
+            (res.replicate_difference_relative ? std::string("%") : res.unit));
+  }
+  const std::string drift_unit =
+      m.indication.kind == IndicationKind::electrode ? " mV/min" : " per min";
+  for (const Step& step : m.steps) {
+    out << "\n[step]\n";
+    put("kind", step_kind_name(step));
+    if (const auto* s = std::get_if<AddReagentStep>(&step)) {
+      put("reagent", one_line(s->reagent));
+      put("volume", number(s->volume_ml) + " mL");
+    } else if (const auto* s = std::get_if<AdjustPhStep>(&step)) {
+      put("target", number(s->target_ph));
+      put("tolerance", number(s->tolerance_ph));
+      if (!s->acid.empty())
+        put("acid", one_line(s->acid));
+      if (!s->base.empty())
+        put("base", one_line(s->base));
+      put("largest total volume", number(s->largest_total_volume_ml) + " mL");
+    } else if (const auto* s = std::get_if<WaitStep>(&step)) {
+      put("duration", number(s->duration_s) + " s");
+      put("stirrer speed", number(s->stirrer_rpm) + " rpm");
+    } else if (const auto* s = std::get_if<AddTitrantStep>(&step)) {
+      put("titrant", one_line(s->titrant));
+      put("volume", number(s->volume_ml) + " mL");
+    } else if (std::holds_alternative<TitrateStep>(step) ||
+               std::holds_alternative<BackTitrateStep>(step)) {
+      const TitrateStep& t = std::holds_alternative<TitrateStep>(step)
+                                 ? std::get<TitrateStep>(step)
+                                 : static_cast<const TitrateStep&>(std::get<BackTitrateStep>(step));
+      put("titrant", one_line(t.titrant));
+      put("dosing", t.dosing);
+      put("dosing options", t.dosing_options.dump());
+      put("initial volume", number(t.initial_volume_ml) + " mL");
+      put("largest volume", number(t.largest_volume_ml) + " mL");
+      put("volume past endpoint", number(t.volume_past_endpoint_ml) + " mL");
+      put("time limit", number(t.time_limit_s) + " s");
+      put("drift limit", number(t.drift_limit_per_min) + drift_unit);
+      put("settling window", number(t.settling_window_s) + " s");
+      put("shortest wait", number(t.shortest_wait_s) + " s");
+      put("longest wait", number(t.longest_wait_s) + " s");
+    } else if (const auto* s = std::get_if<EvaluateStep>(&step)) {
+      put("endpoint method", s->endpoint_method);
+      put("options", s->options.dump());
+      put("expected endpoint",
+          number(s->expected_from_ml) + " to " + number(s->expected_to_ml) + " mL");
+    } else if (const auto* s = std::get_if<RinseStep>(&step)) {
+      put("liquid", one_line(s->liquid));
+      put("volume", number(s->volume_ml) + " mL");
+      put("times", std::to_string(s->times));
+    }
+  }
+  return out.str();
+}
+
+Result<void> validate_method(const Method& method) {
+  auto parsed = parse_method(write_method(method), "method '" + method.name + "' as written");
+  if (!parsed)
+    return parsed.error();
+  return {};
+}
+
+Result<Method> read_method_file(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in)
+    return make_error(ErrorKind::not_found, "cannot open method file '" + path + "'");
+  std::ostringstream text;
+  text << in.rdbuf();
+  return parse_method(text.str(), path);
+}
+
+}  // namespace veq::method

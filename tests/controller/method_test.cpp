@@ -1,0 +1,314 @@
+// Method files: the two example files, write -> parse round trips, every
+// kind of validation error with its line and field, and the dosing names
+// shared with controller/dosing.hpp.
+#include <gtest/gtest.h>
+
+#include <set>
+#include <string>
+#include <vector>
+
+#include "controller/dosing.hpp"
+#include "controller/method/method_file.hpp"
+
+namespace veq::method {
+namespace {
+
+std::string example(const char* name) {
+  return std::string(VEQ_SOURCE_DIR) + "/docs/examples/" + name;
+}
+
+std::vector<std::string> step_kinds(const Method& m) {
+  std::vector<std::string> out;
+  for (const auto& s : m.steps)
+    out.emplace_back(step_kind_name(s));
+  return out;
+}
+
+TEST(MethodFile, ReadsTheHardnessExample) {
+  auto m = read_method_file(example("tap-water-hardness.method"));
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_EQ(m->name, "tap water total hardness");
+  EXPECT_EQ(m->replicates, 2);
+  ASSERT_EQ(m->titrants.size(), 1u);
+  EXPECT_EQ(m->titrants[0].burette, "burette 1");
+  EXPECT_EQ(m->indication.kind, IndicationKind::electrode);
+  EXPECT_TRUE(m->indication.needs_calibration);
+  EXPECT_EQ(m->result.unit, "mg/L");
+  EXPECT_DOUBLE_EQ(m->result.molar_mass_g_per_mol, 100.086);
+  EXPECT_TRUE(m->result.replicate_difference_relative);
+  EXPECT_DOUBLE_EQ(*m->result.largest_replicate_difference, 1.0);
+  EXPECT_EQ(step_kinds(*m), (std::vector<std::string>{"add reagent", "adjust ph", "wait", "titrate",
+                                                      "evaluate", "rinse"}));
+  const auto& titrate = std::get<TitrateStep>(m->steps[3]);
+  EXPECT_EQ(titrate.dosing, "adaptive increments");
+  EXPECT_DOUBLE_EQ(titrate.dosing_options.at("largest_step_ml").get<double>(), 0.3);
+  EXPECT_DOUBLE_EQ(titrate.time_limit_s, 1800.0);  // 30 min
+  const auto& evaluate = std::get<EvaluateStep>(m->steps[4]);
+  EXPECT_DOUBLE_EQ(evaluate.expected_from_ml, 2.0);
+  EXPECT_DOUBLE_EQ(evaluate.expected_to_ml, 15.0);
+}
+
+TEST(MethodFile, ReadsTheBackTitrationExample) {
+  auto m = read_method_file(example("nickel-back-titration.method"));
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_EQ(step_kinds(*m),
+            (std::vector<std::string>{"add titrant", "add reagent", "adjust ph", "wait",
+                                      "back titrate", "evaluate", "rinse"}));
+  EXPECT_EQ(m->indication.kind, IndicationKind::photometer);
+  EXPECT_FALSE(m->indication.needs_calibration);
+  EXPECT_FALSE(m->result.replicate_difference_relative);
+  EXPECT_DOUBLE_EQ(*m->result.largest_replicate_difference, 0.5);
+  EXPECT_DOUBLE_EQ(std::get<WaitStep>(m->steps[3]).duration_s, 120.0);  // 2 min
+  const auto& back = std::get<BackTitrateStep>(m->steps[4]);
+  EXPECT_EQ(back.titrant, "zinc standard 0.01 mol/L");
+  const auto& rinse = std::get<RinseStep>(m->steps[6]);  // all defaults
+  EXPECT_EQ(rinse, RinseStep{});
+}
+
+TEST(MethodFile, WriteThenParseGivesTheSameMethod) {
+  for (const char* name : {"tap-water-hardness.method", "nickel-back-titration.method"}) {
+    auto m = read_method_file(example(name));
+    ASSERT_TRUE(m.has_value()) << m.error().message;
+    const std::string text = write_method(*m);
+    auto again = parse_method(text, name);
+    ASSERT_TRUE(again.has_value()) << again.error().message << "\n" << text;
+    EXPECT_EQ(*again, *m) << name;
+    EXPECT_EQ(write_method(*again), text) << name;
+  }
+}
+
+TEST(MethodFile, RoundTripKeepsUnitConversionsAndAwkwardNumbers) {
+  const std::string text = R"(
+[method]
+name = conversions
+version = 7
+[titrant]
+name = EDTA
+burette = b1
+[indication]
+kind = electrode
+name = e1
+needs calibration = no
+[result]
+analyte = zinc
+molar mass = 65.38 g/mol
+analyte per titrant = 0.5
+unit = mol/L
+[step]
+kind = wait
+duration = 0.25 h
+[step]
+kind = titrate
+titrant = EDTA
+dosing = model guided
+dosing options = {"required_uncertainty_ml": 0.003, "points_past_endpoint": 6}
+initial volume = 1500 uL
+largest volume = 0.02 L
+[step]
+kind = evaluate
+endpoint method = gran
+options = {}
+expected endpoint = 0.1 mL to 19.99 mL
+)";
+  auto m = parse_method(text, "conversions");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_EQ(m->version, 7);
+  EXPECT_DOUBLE_EQ(std::get<WaitStep>(m->steps[0]).duration_s, 900.0);
+  const auto& t = std::get<TitrateStep>(m->steps[1]);
+  EXPECT_DOUBLE_EQ(t.initial_volume_ml, 1.5);
+  EXPECT_DOUBLE_EQ(t.largest_volume_ml, 20.0);
+  auto again = parse_method(write_method(*m), "again");
+  ASSERT_TRUE(again.has_value()) << again.error().message;
+  EXPECT_EQ(*again, *m);
+  EXPECT_TRUE(validate_method(*m).has_value());
+}
+
+// A small valid file; each case below changes one line and expects the error
+// at a given line and field.
+const std::vector<std::string> kBase = {
+    "[method]",                        // 1
+    "name = test",                     // 2
+    "replicates = 2",                  // 3
+    "[titrant]",                       // 4
+    "name = EDTA",                     // 5
+    "burette = b1",                    // 6
+    "[reagent]",                       // 7
+    "name = buffer",                   // 8
+    "doser = d1",                      // 9
+    "[indication]",                    // 10
+    "kind = electrode",                // 11
+    "name = e1",                       // 12
+    "[result]",                        // 13
+    "analyte = calcium",               // 14
+    "molar mass = 40.078 g/mol",       // 15
+    "unit = mmol/L",                   // 16
+    "[step]",                          // 17
+    "kind = add reagent",              // 18
+    "reagent = buffer",                // 19
+    "volume = 2 mL",                   // 20
+    "[step]",                          // 21
+    "kind = titrate",                  // 22
+    "titrant = EDTA",                  // 23
+    "dosing = fixed increments",       // 24
+    "largest volume = 20 mL",          // 25
+    "[step]",                          // 26
+    "kind = evaluate",                 // 27
+    "endpoint method = derivative",    // 28
+    "expected endpoint = 1 to 15 mL",  // 29
+};
+
+std::string with(std::vector<std::pair<int, std::string>> changes) {
+  auto lines = kBase;
+  for (auto& [line, text] : changes)
+    lines[static_cast<std::size_t>(line - 1)] = text;
+  std::string out;
+  for (const auto& l : lines)
+    out += l + "\n";
+  return out;
+}
+
+TEST(MethodFile, TheBaseFileIsValid) {
+  auto m = parse_method(with({}), "base");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_EQ(m->steps.size(), 3u);
+}
+
+struct BadCase {
+  const char* what;
+  std::vector<std::pair<int, std::string>> changes;
+  int line;
+  const char* field;
+  const char* says;
+};
+
+TEST(MethodFile, EveryErrorNamesItsLineAndField) {
+  const std::vector<BadCase> cases = {
+      {"unknown key", {{3, "replicate = 2"}}, 3, "replicate", "unknown key"},
+      {"missing required field", {{20, "# no volume"}}, 17, "volume", "missing"},
+      {"value out of range", {{20, "volume = -2 mL"}}, 20, "volume", "out of range"},
+      {"zero volume", {{20, "volume = 0 mL"}}, 20, "volume", "out of range"},
+      {"wrong unit", {{20, "volume = 2 kg"}}, 20, "volume", "wrong unit 'kg'"},
+      {"missing unit", {{15, "molar mass = 40.078"}}, 15, "molar mass", "needs a unit"},
+      {"not a number", {{20, "volume = two mL"}}, 20, "volume", "does not start with a number"},
+      {"too many replicates", {{3, "replicates = 50"}}, 3, "replicates", "out of range"},
+      {"unknown step kind", {{18, "kind = stirr"}}, 18, "kind", "unknown value 'stirr'"},
+      {"unknown section", {{7, "[reagents]"}}, 7, "reagents", "unknown section"},
+      {"key given twice", {{3, "name = again"}}, 3, "name", "given twice"},
+      {"key before any section", {{1, "name = loose"}}, 1, "name", "before any [section]"},
+      {"evaluate before any titration",
+       {{18, "kind = evaluate"},
+        {19, "endpoint method = derivative"},
+        {20, "expected endpoint = 1 to 15 mL"}},
+       18,
+       "kind",
+       "evaluate comes before any titration"},
+      {"titration never evaluated",
+       {{26, "# gone"}, {27, "# gone"}, {28, "# gone"}, {29, "# gone"}},
+       22,
+       "kind",
+       "never evaluated"},
+      {"back titration without an excess",
+       {{22, "kind = back titrate"}},
+       22,
+       "kind",
+       "needs an excess added before it"},
+      {"reagent not declared", {{19, "reagent = bufer"}}, 19, "reagent", "not listed"},
+      {"titrant not declared", {{23, "titrant = EGTA"}}, 23, "titrant", "not listed"},
+      {"unknown dosing strategy", {{24, "dosing = big steps"}}, 24, "dosing", "unknown value"},
+      {"unknown dosing option",
+       {{25, "largest volume = 20 mL\ndosing options = {\"increment\": 1}"}},
+       26,
+       "dosing options",
+       "unknown option 'increment'"},
+      {"dosing options not JSON",
+       {{25, "largest volume = 20 mL\ndosing options = {bad"}},
+       26,
+       "dosing options",
+       "JSON object"},
+      {"endpoint option unknown to detection",
+       {{28, "endpoint method = derivative\noptions = {\"nonsense\": 1}"}},
+       29,
+       "options",
+       "nonsense"},
+      {"unknown endpoint method",
+       {{28, "endpoint method = guess"}},
+       28,
+       "endpoint method",
+       "known: derivative"},
+      {"endpoint range beyond the burette",
+       {{29, "expected endpoint = 1 to 25 mL"}},
+       29,
+       "expected endpoint",
+       "beyond the titration's largest volume"},
+      {"endpoint range reversed",
+       {{29, "expected endpoint = 15 to 1 mL"}},
+       29,
+       "expected endpoint",
+       "end above its start"},
+      {"acceptance limit in another unit",
+       {{16, "unit = mmol/L\nlowest = 1 mg/L"}},
+       17,
+       "lowest",
+       "wrong unit 'mg/L'"},
+      {"pH given a unit",
+       {{18, "kind = adjust ph"}, {19, "target = 10 pH"}},
+       19,
+       "target",
+       "wrong unit 'pH'"},
+      {"yes or no",
+       {{12, "name = e1\nneeds calibration = maybe"}},
+       13,
+       "needs calibration",
+       "yes or no"},
+  };
+  for (const auto& c : cases) {
+    auto m = parse_method(with(c.changes), "bad.method");
+    ASSERT_FALSE(m.has_value()) << c.what;
+    const std::string& message = m.error().message;
+    const std::string where =
+        "bad.method: line " + std::to_string(c.line) + ", field '" + c.field + "'";
+    EXPECT_NE(message.find(where), std::string::npos) << c.what << ": " << message;
+    EXPECT_NE(message.find(c.says), std::string::npos) << c.what << ": " << message;
+    EXPECT_EQ(m.error().kind, ErrorKind::invalid_input) << c.what;
+  }
+}
+
+TEST(MethodFile, MissingSectionsAreNamed) {
+  auto m = parse_method("[method]\nname = x\n", "short.method");
+  ASSERT_FALSE(m.has_value());
+  EXPECT_NE(m.error().message.find("short.method: line 2, field 'indication'"), std::string::npos)
+      << m.error().message;
+}
+
+TEST(MethodFile, ValidateMethodRefusesAMethodBuiltWrongInCode) {
+  auto m = read_method_file(example("tap-water-hardness.method"));
+  ASSERT_TRUE(m.has_value());
+  Method bad = *m;
+  std::swap(bad.steps[3], bad.steps[4]);  // evaluate before titrate
+  auto checked = validate_method(bad);
+  ASSERT_FALSE(checked.has_value());
+  EXPECT_NE(checked.error().message.find("evaluate comes before any titration"), std::string::npos)
+      << checked.error().message;
+}
+
+// The method library keeps its own list of dosing names (it sits below the
+// controller); the controller must accept every one of them.
+TEST(MethodFile, DosingNamesAreThoseOfTheController) {
+  for (auto name : dosing_strategy_names()) {
+    auto plan = controller::dosing_plan_from_json({{"kind", std::string(name)}});
+    ASSERT_TRUE(plan.has_value()) << name;
+    EXPECT_EQ(controller::dosing_kind_name(plan->kind), name);
+  }
+  std::set<std::string> controller_options;
+  const nlohmann::json plan = controller::to_json(controller::DosingPlan{});
+  for (auto it = plan.begin(); it != plan.end(); ++it)
+    if (it.key() != "kind")
+      controller_options.insert(it.key());
+  std::set<std::string> ours;
+  for (auto name : dosing_option_names())
+    ours.insert(std::string(name));
+  EXPECT_EQ(ours, controller_options);
+}
+
+}  // namespace
+}  // namespace veq::method
