@@ -164,11 +164,14 @@ BenchTruths SimulatedBench::truths() const {
   t.burette_random_error_ml = s.burette.random_error_ml;
   t.balance_offset_g = s.balance.offset_g;
   t.balance_sensitivity_error_percent = s.balance.sensitivity_error_percent;
+  t.vessel_ph = s.sample.ph;
   if (s.chemistry.present) {
     VesselContent c = added;
     c.titrant_ml = t.titrant_delivered_ml;
-    if (truth_vessel_.solve(c) && truth_vessel_.model() &&
-        truth_vessel_.model()->indicator_component() >= 0) {
+    const bool solved = static_cast<bool>(truth_vessel_.solve(c));
+    if (solved)
+      t.vessel_ph = truth_vessel_.ph();
+    if (solved && truth_vessel_.model() && truth_vessel_.model()->indicator_component() >= 0) {
       const auto* model = truth_vessel_.model();
       const double fraction = model->indicator_bound_fraction(truth_vessel_.speciation());
       // The model's sample volume holds every amount (see VesselModel).

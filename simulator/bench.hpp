@@ -48,6 +48,10 @@ struct BenchTruths {
   /// premixed titrant), mL, with the burette's systematic error.
   double sample_equivalence_reading_ml = 0.0;
   double vessel_equivalence_reading_ml = 0.0;
+  /// pH in the vessel now: the chemistry section's equilibrium (moved by
+  /// acid or base from the doser when pH follows the proton balance), or the
+  /// 1:1 sample's fixed pH.
+  double vessel_ph = 0.0;
 };
 
 class SimulatedBench {

@@ -249,9 +249,9 @@ struct FaultPlan {
   double after_s = 0.0;  ///< seconds of device time before the fault begins
   /// Seconds of device time at which the fault ends; infinity: never.
   double until_s = 1e300;
-  /// slow_replies: how late each message arrives, ms. 2000 is longer than a
-  /// typical 1 s reply timeout, so that a host must notice it.
-  double delay_ms = 2000.0;
+  /// slow_replies: how late each message arrives, ms. 3000 is longer than
+  /// the drivers' 2 s reply timeout, so that a host must notice it.
+  double delay_ms = 3000.0;
   /// spikes: chance that one reading is hit, 0..1. 0.2: often enough to show
   /// in a 30-point curve.
   double probability = 0.2;
