@@ -136,6 +136,13 @@ class DeviceServer::Impl {
     });
   }
 
+  void pull_soon(const std::string& name) {
+    asio::post(io_, [this, name] {
+      if (auto* line = find(name))
+        close(*line, false);
+    });
+  }
+
   void refuse(const std::string& name, bool refuse) {
     on_thread([&] {
       if (auto* line = find(name)) {
@@ -335,6 +342,9 @@ void DeviceServer::run() {
 }
 void DeviceServer::pull(const std::string& name) {
   impl_->pull(name);
+}
+void DeviceServer::pull_soon(const std::string& name) {
+  impl_->pull_soon(name);
 }
 void DeviceServer::refuse_connections(const std::string& name, bool refuse) {
   impl_->refuse(name, refuse);

@@ -46,6 +46,9 @@ class DeviceServer {
   /// connection is closed (the listener stays, so a host may connect again
   /// unless refuse_connections() says otherwise).
   void pull(const std::string& name);
+  /// The same without waiting, safe from the serving thread itself (a
+  /// device's disconnect fault pulls its own cable while answering).
+  void pull_soon(const std::string& name);
   /// A TCP line closes every new connection at once while `refuse` is true
   /// (a converter whose serial side is dead).
   void refuse_connections(const std::string& name, bool refuse);

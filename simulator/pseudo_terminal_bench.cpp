@@ -53,7 +53,12 @@ class PseudoTerminalBench::Impl {
         burette_("burette", std::move(burette_pty), io_, bench_.burette()),
         electrode_("electrode", std::move(electrode_pty), io_, bench_.electrode()),
         burette_port_(burette_.pty.slave_path()),
-        electrode_port_(electrode_.pty.slave_path()) {}
+        electrode_port_(electrode_.pty.slave_path()) {
+    // A disconnect fault closes the device's own port, later on the serving
+    // thread (the device asks while it is answering on that thread).
+    bench_.burette().on_disconnect([this] { asio::post(io_, [this] { close(burette_); }); });
+    bench_.electrode().on_disconnect([this] { asio::post(io_, [this] { close(electrode_); }); });
+  }
 
   ~Impl() { stop(); }
 

@@ -111,6 +111,12 @@ int serve_general(const Options& options, const veq::simulator::Scenario& scenar
     served.emplace_back("stirrer", &bench.stirrer());
     served.emplace_back("sample_changer", &bench.sample_changer());
   }
+  // A disconnect fault in the scenario closes the device's own line.
+  for (const auto& entry : served) {
+    const std::string name = entry.first;
+    if (VirtualDevice* d = bench.device(name))
+      d->on_disconnect([&server, name] { server.pull_soon(name); });
+  }
   std::string lines;
   for (const auto& [name, device] : served) {
     auto where = options.tcp ? server.serve_on_tcp(name, *device)

@@ -5,6 +5,8 @@
 
 #include <chrono>
 #include <cmath>
+#include <filesystem>
+#include <fstream>
 #include <memory>
 #include <vector>
 
@@ -85,6 +87,61 @@ TEST(SameCurve, InProcessAndOverPortsWithATimeScale) {
   // And the curve does break between 9 and 11 mL (equivalence at 10.0 mL,
   // the demo's truth), so the comparison spans the steep part.
   EXPECT_GT(std::abs(in_process[7] - in_process[4]), 50.0);
+}
+
+TEST(SameCurve, ADisconnectFaultClosesThePseudoTerminal) {
+  Scenario s = scenario();
+  s.electrode_fault.kind = FaultKind::disconnect;
+  s.electrode_fault.after_s = 0.0;
+  PseudoTerminalBenchOptions options;
+  options.time_scale = 50.0;
+  auto bench = PseudoTerminalBench::start(s, options);
+  ASSERT_TRUE(bench.has_value()) << bench.error().message;
+  drivers::ScaledClock clock{50.0};
+  auto line = drivers::open_transport((*bench)->electrode_connection());
+  ASSERT_TRUE(line.has_value());
+  drivers::LinkOptions link_options;
+  link_options.reply_timeout = 300ms;
+  drivers::DeviceLink e(**line, clock, "electrode", link_options);
+  drivers::PotentialSensorClient sensor(e);
+  auto first = sensor.read();
+  ASSERT_FALSE(first.has_value());
+  // The port is gone: the host hears nothing more, whatever it asks.
+  auto second = sensor.read();
+  ASSERT_FALSE(second.has_value());
+  EXPECT_TRUE(second.error().kind == ErrorKind::disconnected ||
+              second.error().kind == ErrorKind::io || second.error().kind == ErrorKind::timeout)
+      << second.error().message;
+}
+
+TEST(SameCurve, AScenarioFileReplaysACsvBesideIt) {
+  const auto dir = std::filesystem::temp_directory_path() / "veq_sim8_replay";
+  std::filesystem::create_directories(dir);
+  {
+    std::ofstream csv(dir / "stored.csv");
+    csv << "volume_ml;potential_mv\n0;80\n1;90\n2;140\n";
+    std::ofstream json(dir / "replay.json");
+    json << R"({"sample": {"metal_conc_mol_per_l": 0.01, "volume_ml": 25,
+        "log10_formation_constant": 10.7}, "titrant": {"label_conc_mol_per_l": 0.05, "pka": [2]},
+        "replay": {"file": "stored.csv", "role": "electrode"}})";
+  }
+  auto s = load_scenario((dir / "replay.json").string());
+  ASSERT_TRUE(s.has_value()) << s.error().message;
+  drivers::VirtualClock clock;
+  SimulatedBench bench(*s, clock);
+  EXPECT_EQ(bench.electrode().equilibrium_potential_mv(1.0), 90.0);
+  EXPECT_NEAR(bench.electrode().equilibrium_potential_mv(1.5), 115.0, 1e-12);
+  // A missing file is named.
+  {
+    std::ofstream json(dir / "missing.json");
+    json << R"({"sample": {"metal_conc_mol_per_l": 0.01, "volume_ml": 25,
+        "log10_formation_constant": 10.7}, "titrant": {"label_conc_mol_per_l": 0.05, "pka": [2]},
+        "replay": {"file": "nowhere.csv"}})";
+  }
+  auto missing = load_scenario((dir / "missing.json").string());
+  ASSERT_FALSE(missing.has_value());
+  EXPECT_NE(missing.error().message.find("nowhere.csv"), std::string::npos);
+  std::filesystem::remove_all(dir);
 }
 
 }  // namespace
