@@ -14,8 +14,10 @@ const char* indication_kind_name(IndicationKind kind) {
   return "unknown";
 }
 
+// The names of controller/results.hpp (result_unit_name); a test checks that
+// the controller knows each of them.
 std::vector<std::string_view> result_units() {
-  return {"mol/L", "mmol/L", "mg/L", "g/L"};
+  return {"mol/L", "mmol/L", "mg/L", "% w/w", "mg/kg"};
 }
 
 const char* step_kind_name(const Step& step) {

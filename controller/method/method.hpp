@@ -66,7 +66,8 @@ struct ResultRule {
   bool operator==(const ResultRule&) const = default;
 };
 
-/// The units a result may be given in: "mol/L", "mmol/L", "mg/L", "g/L".
+/// The units a result may be given in, as controller/results.hpp names them:
+/// "mol/L", "mmol/L", "mg/L", "% w/w" (mass fraction), "mg/kg".
 std::vector<std::string_view> result_units();
 
 // ---- steps ---------------------------------------------------------------

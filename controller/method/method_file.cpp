@@ -735,7 +735,10 @@ Result<Method> parse_method(std::string_view text, const std::string& origin) {
         const std::vector<Unit> either = {{"%", 1.0}, {res.unit, 1.0}};
         auto v = r.parse_quantity(e->value, e->line, e->key, either);
         if (v) {
-          res.replicate_difference_relative = e->value.find('%') != std::string::npos;
+          // "%" alone is relative; "% w/w" is the result unit itself.
+          const auto unit_at = e->value.find_first_not_of("0123456789.+-eE ");
+          res.replicate_difference_relative =
+              unit_at != std::string::npos && normal_key(e->value.substr(unit_at)) == "%";
           res.largest_replicate_difference = *v;
           if (!(*v > 0.0))
             errors.add(e->line, e->key, "must be above 0");

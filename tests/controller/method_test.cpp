@@ -9,6 +9,7 @@
 
 #include "controller/dosing.hpp"
 #include "controller/method/method_file.hpp"
+#include "controller/results.hpp"
 
 namespace veq::method {
 namespace {
@@ -308,6 +309,26 @@ TEST(MethodFile, DosingNamesAreThoseOfTheController) {
   for (auto name : dosing_option_names())
     ours.insert(std::string(name));
   EXPECT_EQ(ours, controller_options);
+}
+
+TEST(MethodFile, ResultUnitsAreThoseOfTheController) {
+  for (auto unit : result_units())
+    EXPECT_TRUE(controller::result_unit_from_name(unit).has_value()) << unit;
+}
+
+TEST(MethodFile, MassFractionIsAUnitNotARelativeDifference) {
+  const std::string text = with({{16, "unit = % w/w\nlargest replicate difference = 0.02 % w/w"}});
+  auto m = parse_method(text, "fraction");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_FALSE(m->result.replicate_difference_relative);
+  EXPECT_DOUBLE_EQ(*m->result.largest_replicate_difference, 0.02);
+  auto again = parse_method(write_method(*m), "again");
+  ASSERT_TRUE(again.has_value()) << again.error().message;
+  EXPECT_EQ(*again, *m);
+  const std::string relative = with({{16, "unit = % w/w\nlargest replicate difference = 2 %"}});
+  m = parse_method(relative, "relative");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_TRUE(m->result.replicate_difference_relative);
 }
 
 }  // namespace
