@@ -263,6 +263,15 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
       json copy = c;
       copy.erase("blank_metal");
       copy.erase("premixed_titrant_mol");
+      // The titrant is the scenario's (its true concentration replaces this
+      // one when the vessel is built); the section may leave it out.
+      if (!copy.contains("titrant")) {
+        std::string name = "EDTA";
+        if (doc.contains("titrant") && doc.at("titrant").is_object() &&
+            doc.at("titrant").contains("name") && doc.at("titrant").at("name").is_string())
+          name = doc.at("titrant").at("name").get<std::string>();
+        copy["titrant"] = json{{"name", name}, {"conc_mol_per_l", 1.0}};
+      }
       r.number(c, "chemistry", "premixed_titrant_mol", s.chemistry.premixed_titrant_mol, false, 0.0,
                1.0);
       s.chemistry.sample_json = copy.dump();

@@ -27,16 +27,14 @@ const FaultPlan* VirtualDevice::active_fault(FaultKind kind) const {
 }
 
 bool VirtualDevice::cable_pulled() {
-  if (!active_fault(FaultKind::disconnect)) {
-    pulled_ = false;
+  if (!active_fault(FaultKind::disconnect))
     return false;
-  }
-  if (!pulled_ && pull_cable_) {
-    pulled_ = true;
-    delayed_.clear();
-    pending_.clear();
+  // The cable stays out while the fault lasts: a host that reopens its line
+  // loses it again at its next request.
+  delayed_.clear();
+  pending_.clear();
+  if (pull_cable_)
     pull_cable_();
-  }
   return true;
 }
 

@@ -53,8 +53,9 @@ class VirtualDevice : public drivers::ByteDevice {
   /// What a disconnect fault does: pulls the device's cable (the bench
   /// closes its line). Without it, a disconnected device just falls silent.
   void on_disconnect(std::function<void()> pull) { pull_cable_ = std::move(pull); }
-  /// True when a disconnect fault is active now; pulls the cable (once per
-  /// activation). Front ends call it before handing a request on.
+  /// True when a disconnect fault is active now; pulls the cable (again at
+  /// every request while the fault lasts). Front ends call it before
+  /// handing a request on.
   bool cable_pulled();
   /// Messages held back by a slow_replies fault that are due now, in order.
   std::string release_delayed();
@@ -89,7 +90,6 @@ class VirtualDevice : public drivers::ByteDevice {
   std::string pending_;
   std::vector<FaultPlan> faults_;
   std::function<void()> pull_cable_;
-  bool pulled_ = false;
   std::optional<double> dead_value_;
   /// Messages delayed by slow_replies: when each is due and its bytes.
   std::deque<std::pair<drivers::Duration, std::string>> delayed_;

@@ -134,6 +134,22 @@ TEST(Truths, BalanceOffsetAndSensitivityShowUntilTared) {
   EXPECT_NEAR(h.bench->truths().balance_offset_g, 0.0123, 1e-15);
 }
 
+TEST(Truths, TheHardWaterDemoHidesWhatItShould) {
+  auto s = load_scenario(std::string(VEQ_SOURCE_DIR) + "/simulator/scenarios/demo_hard_water.json");
+  ASSERT_TRUE(s.has_value()) << s.error().message;
+  drivers::VirtualClock clock;
+  SimulatedBench bench(*s, clock);
+  const BenchTruths t = bench.truths();
+  // Invented demo values: 50 mL of 1.8 mM Ca and 0.6 mM Mg, 4e-7 mol blank,
+  // titrant 0.01986 mol/L against a label of 0.0200, burette +0.15 %.
+  ASSERT_EQ(t.sample_metals_mol.size(), 2u);
+  EXPECT_NEAR(t.sample_metals_mol[0].second, 9.0e-5, 1e-15);
+  EXPECT_NEAR(t.sample_metals_mol[1].second, 3.0e-5, 1e-15);
+  EXPECT_NEAR(t.vessel_equivalence_reading_ml, 1.204e-4 / 0.01986 * 1000.0 / 1.0015, 1e-9);
+  EXPECT_EQ(t.titrant_label_conc_mol_per_l, 0.02);
+  EXPECT_EQ(t.balance_offset_g, 0.0007);
+}
+
 // ---- the electrode against the chemistry engine ----
 
 const char* kCalcium =
