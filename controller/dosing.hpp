@@ -1,5 +1,5 @@
 // Dosing strategies: how much titrant to add next, from the curve so far.
-// Names are our own plain words (docs/dosing.md explains each).
+// Names are our own plain words (docs/titration.md explains each).
 #pragma once
 
 #include <memory>
@@ -31,9 +31,12 @@ struct DosingPlan {
 
   /// adaptive_increments and model_guided: smallest and largest step (mL).
   /// 0.01 mL is two or three motor steps short of what a 10-20 mL burette
-  /// delivers reproducibly; 0.5 mL keeps a flat start quick.
+  /// delivers reproducibly; 1 mL keeps a flat start quick (each step costs a
+  /// settling wait, which is long for metals that react slowly) and cannot
+  /// leap a 1:1 break: before one the slope grows as 1/(Ve - V), so steps
+  /// sized to the signal change land about a third of the way to it.
   double smallest_step_ml = 0.01;
-  double largest_step_ml = 0.5;
+  double largest_step_ml = 1.0;
   /// adaptive_increments: wanted signal change per step (signal units, mV).
   /// 4 mV puts ten to twenty points on a break of 100-200 mV.
   double target_signal_step = 4.0;
@@ -51,9 +54,13 @@ struct DosingPlan {
   /// below this (mL) and `points_past_endpoint` points lie past it.
   double required_uncertainty_ml = 0.005;
   int points_past_endpoint = 6;
-  /// model_guided: points at the smallest step within this distance of the
-  /// predicted endpoint (mL).
-  double endpoint_zone_ml = 0.15;
+  /// model_guided: within this distance before the predicted endpoint (mL)
+  /// the steps are sized to the signal change; before it they halve the way
+  /// left. 0.3 mL puts points into the bend before a weak break (conditional
+  /// log K near 6.5 at 0.02 mol/L), which the fitted curve needs for its
+  /// constant; 0.15 mL left the model fit's scatter there 30 % larger
+  /// (docs/titration.md, benchmark).
+  double endpoint_zone_ml = 0.3;
 };
 
 nlohmann::json to_json(const DosingPlan& plan);
@@ -65,6 +72,19 @@ struct CurveSoFar {
   const std::vector<double>& volume_ml;
   const std::vector<double>& signal;
   double max_volume_ml;  ///< the method's maximum burette reading
+  /// Run clock time of each point (s), or null; model-guided dosing passes it
+  /// to an endpoint method that fits the electrode's lag and drift.
+  const std::vector<double>* time_s = nullptr;
+};
+
+/// The endpoint method a run ends with (TitrationMethod::endpoint_method and
+/// endpoint_options): a detection::evaluate() name and its options as JSON.
+/// Model-guided dosing judges the endpoint while titrating with the same
+/// method, so that it stops when the evaluation that gives the result knows
+/// the endpoint well enough, not when another method does.
+struct EndpointJudge {
+  std::string method = "derivative";
+  nlohmann::json options = nlohmann::json::object();
 };
 
 /// What to do next.
@@ -90,10 +110,12 @@ class DosingStrategy {
 };
 
 /// The strategy of a plan. model_guided needs the sample volume before
-/// titrant (mL) for the dilution in its predicted curve shape, and judges the
-/// endpoint with the same derivative options as the run's final evaluation.
+/// titrant (mL) for the dilution in its predicted curve shape; it sees the
+/// break with the derivative method (`detection`) and judges the endpoint's
+/// uncertainty with the run's final endpoint method (`judge`; when that
+/// method fails on the curve so far, with the derivative method).
 std::unique_ptr<DosingStrategy> make_dosing_strategy(
     const DosingPlan& plan, double sample_volume_ml,
-    const detection::DerivativeOptions& detection = {});
+    const detection::DerivativeOptions& detection = {}, const EndpointJudge& judge = {});
 
 }  // namespace veq::controller

@@ -4,6 +4,7 @@
 #include <sstream>
 
 #include "detection/curve.hpp"
+#include "detection/evaluate.hpp"
 
 namespace veq::controller {
 
@@ -29,6 +30,17 @@ std::string flag_names(const std::vector<detection::QualityFlag>& flags) {
   return out;
 }
 
+/// Whole-curve flags that make an evaluation unfit to give the result.
+std::vector<detection::QualityFlag> doubtful_flags(
+    const std::vector<detection::QualityFlag>& flags) {
+  std::vector<detection::QualityFlag> out;
+  for (auto f : {detection::QualityFlag::poor_fit, detection::QualityFlag::fit_not_converged}) {
+    if (detection::has_flag(flags, f))
+      out.push_back(f);
+  }
+  return out;
+}
+
 /// One titration in progress; the procedure reads top to bottom in run().
 class Titration {
  public:
@@ -40,7 +52,9 @@ class Titration {
         method_(method),
         observer_(observer),
         control_(control),
-        strategy_(make_dosing_strategy(method.dosing, sample.sample_volume_ml, method.detection)) {}
+        strategy_(
+            make_dosing_strategy(method.dosing, sample.sample_volume_ml, method.detection,
+                                 EndpointJudge{method.endpoint_method, method.endpoint_options})) {}
 
   RunOutcome run() {
     store::NewRun record;
@@ -170,7 +184,7 @@ class Titration {
         return {};
       }
       const DoseDecision next =
-          strategy_->next(CurveSoFar{volumes_, signals_, method_.max_volume_ml});
+          strategy_->next(CurveSoFar{volumes_, signals_, method_.max_volume_ml, &times_});
       if (next.finished) {
         stop_reason_ = next.reason;
         strategy_endpoint_ml_ = next.endpoint_ml;
@@ -211,22 +225,41 @@ class Titration {
     auto c = curve();
     if (!c)
       return end_with_error(c.error());
-    const auto evaluation = detection::find_endpoints_by_derivative(*c, method_.detection);
-    store::EvaluationRecord record;
-    record.method = evaluation.method;
-    record.options_json = evaluation.options.dump();
-    record.flags = flag_names(evaluation.flags);
-    for (const auto& e : evaluation.endpoints) {
-      record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
-                                                       e.steepness, flag_names(e.flags)});
+    // The derivative evaluation is always made and stored: the stop rule used
+    // it, and it is the fallback when another chosen method fails.
+    const auto by_derivative = detection::find_endpoints_by_derivative(*c, method_.detection);
+    auto derivative_id = store_evaluation(by_derivative);
+    if (!derivative_id)
+      return end_with_error(derivative_id.error());
+    std::int64_t evaluation_id = *derivative_id;
+    std::optional<detection::Endpoint> endpoint = largest_break(by_derivative);
+    if (method_.endpoint_method != "derivative") {
+      auto chosen = detection::evaluate(*c, method_.endpoint_method, method_.endpoint_options);
+      if (!chosen) {
+        say("the " + method_.endpoint_method + " method failed (" + chosen.error().message +
+            "); the endpoint is the derivative method's");
+      } else {
+        auto chosen_id = store_evaluation(*chosen);
+        if (!chosen_id)
+          return end_with_error(chosen_id.error());
+        const auto doubtful = std::string(flag_names(doubtful_flags(chosen->flags)));
+        auto best = largest_break(*chosen);
+        if (best && doubtful.empty()) {
+          endpoint = best;
+          evaluation_id = *chosen_id;
+        } else if (best) {
+          // A fit that does not describe the curve does not give the result.
+          say("the " + method_.endpoint_method + " method's evaluation is flagged " + doubtful +
+              "; the endpoint is the derivative method's");
+        } else {
+          say("the " + method_.endpoint_method +
+              " method found no endpoint; the endpoint is the derivative method's");
+        }
+      }
     }
-    auto evaluation_id = store_.add_evaluation(outcome_.run_id, record);
-    if (!evaluation_id)
-      return end_with_error(evaluation_id.error());
-
-    std::optional<detection::Endpoint> endpoint;
     if (method_.dosing.kind == DosingKind::approach_preset_signal) {
       // The endpoint of a titration to a preset signal is where it was held.
+      endpoint.reset();
       if (strategy_endpoint_ml_ > 0.0) {
         detection::Endpoint e;
         e.volume_ml = strategy_endpoint_ml_;
@@ -235,14 +268,6 @@ class Titration {
                            std::max(1.0, inst_.burette.info().steps_per_cylinder);
         endpoint = e;
       }
-    } else if (!evaluation.endpoints.empty()) {
-      // The endpoint of a single-metal titration is the largest break.
-      const detection::Endpoint* best = &evaluation.endpoints.front();
-      for (const auto& e : evaluation.endpoints) {
-        if (e.steepness > best->steepness)
-          best = &e;
-      }
-      endpoint = *best;
     }
     rinse();
     if (!endpoint) {
@@ -265,7 +290,7 @@ class Titration {
     for (const auto& [name, value] : rows) {
       store::ResultRecord r;
       r.run_id = outcome_.run_id;
-      r.evaluation_id = *evaluation_id;
+      r.evaluation_id = evaluation_id;
       r.name = name;
       r.value = value.first;
       r.unit = value.second;
@@ -276,6 +301,30 @@ class Titration {
     outcome_.reason = stop_reason_;
     finish(RunState::completed, stop_reason_);
     return outcome_;
+  }
+
+  Result<std::int64_t> store_evaluation(const detection::Evaluation& evaluation) {
+    store::EvaluationRecord record;
+    record.method = evaluation.method;
+    record.options_json = evaluation.options.dump();
+    record.flags = flag_names(evaluation.flags);
+    for (const auto& e : evaluation.endpoints) {
+      record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
+                                                       e.steepness, flag_names(e.flags)});
+    }
+    return store_.add_evaluation(outcome_.run_id, record);
+  }
+
+  /// The endpoint of a single-metal titration is the largest break.
+  static std::optional<detection::Endpoint> largest_break(const detection::Evaluation& ev) {
+    if (ev.endpoints.empty())
+      return std::nullopt;
+    const detection::Endpoint* best = &ev.endpoints.front();
+    for (const auto& e : ev.endpoints) {
+      if (e.steepness > best->steepness)
+        best = &e;
+    }
+    return *best;
   }
 
   void rinse() {
@@ -578,6 +627,7 @@ nlohmann::json to_json(const TitrationMethod& m) {
         {"slow_reaction_factor", m.settling.slow_reaction_factor},
         {"slow_change", m.settling.slow_change}}},
       {"detection", {{"method", "derivative"}, {"options", detection::to_json(m.detection)}}},
+      {"endpoint_evaluation", {{"method", m.endpoint_method}, {"options", m.endpoint_options}}},
   };
   if (m.use_signal_limit)
     j["signal_limit"] = m.signal_limit;

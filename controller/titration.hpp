@@ -67,7 +67,22 @@ struct TitrationMethod {
   double dose_rate_ml_per_min = 10.0;  ///< dosing rate, mL/min
   double fill_rate_ml_per_min = 30.0;  ///< cylinder filling rate, mL/min
   SettlingRule settling;
+  /// The derivative method's options: for the stop rule past the endpoint,
+  /// for model-guided dosing's judgement of the endpoint while titrating, and
+  /// for the final evaluation when `endpoint_method` is "derivative".
   detection::DerivativeOptions detection;
+  /// The endpoint method that gives the run's result from the finished curve,
+  /// by its detection::evaluate() name ("derivative", "model", "segments",
+  /// "crossing", "gran"), with its options as JSON in `endpoint_options`.
+  /// Default "derivative" (with `detection`): it needs nothing beyond the
+  /// curve. "model" (option "sample": the sample chemistry) fits the whole
+  /// curve, so it loses nothing on the uneven steps of adaptive and
+  /// model-guided dosing, where the derivative's local fits see fewer points
+  /// across a broad break (docs/titration.md, benchmark). When the chosen
+  /// method fails or finds no endpoint, the derivative endpoint is used and
+  /// the run's messages say so; both evaluations are stored.
+  std::string endpoint_method = "derivative";
+  nlohmann::json endpoint_options = nlohmann::json::object();
 };
 nlohmann::json to_json(const TitrationMethod& method);
 
