@@ -63,4 +63,11 @@ std::vector<std::string_view> dosing_option_names() {
           "points_past_endpoint", "endpoint_zone_ml"};
 }
 
+nlohmann::json dosing_plan_json(const TitrateStep& step) {
+  nlohmann::json plan =
+      step.dosing_options.is_object() ? step.dosing_options : nlohmann::json::object();
+  plan["kind"] = step.dosing;
+  return plan;
+}
+
 }  // namespace veq::method

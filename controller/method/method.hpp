@@ -164,6 +164,11 @@ std::vector<std::string_view> step_kind_names();
 std::vector<std::string_view> dosing_strategy_names();
 std::vector<std::string_view> dosing_option_names();
 
+/// The step's strategy and options as one JSON object in the form of
+/// controller::to_json(DosingPlan): {"kind": dosing, ...dosing_options}, ready
+/// for controller::dosing_plan_from_json().
+nlohmann::json dosing_plan_json(const TitrateStep& step);
+
 struct Method {
   std::string name;
   int version = 1;  ///< given by the store: 1, 2, 3...

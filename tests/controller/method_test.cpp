@@ -311,6 +311,20 @@ TEST(MethodFile, DosingNamesAreThoseOfTheController) {
   EXPECT_EQ(ours, controller_options);
 }
 
+TEST(MethodFile, TheControllerReadsTheExamplesDosingPlans) {
+  auto m = read_method_file(example("tap-water-hardness.method")).value();
+  auto plan =
+      controller::dosing_plan_from_json(dosing_plan_json(std::get<TitrateStep>(m.steps[3])));
+  ASSERT_TRUE(plan.has_value()) << plan.error().message;
+  EXPECT_EQ(plan->kind, controller::DosingKind::adaptive_increments);
+  EXPECT_DOUBLE_EQ(plan->largest_step_ml, 0.3);
+  m = read_method_file(example("nickel-back-titration.method")).value();
+  plan = controller::dosing_plan_from_json(dosing_plan_json(std::get<BackTitrateStep>(m.steps[4])));
+  ASSERT_TRUE(plan.has_value()) << plan.error().message;
+  EXPECT_EQ(plan->kind, controller::DosingKind::fixed_increments);
+  EXPECT_DOUBLE_EQ(plan->increment_ml, 0.05);
+}
+
 TEST(MethodFile, ResultUnitsAreThoseOfTheController) {
   for (auto unit : result_units())
     EXPECT_TRUE(controller::result_unit_from_name(unit).has_value()) << unit;
