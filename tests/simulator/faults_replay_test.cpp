@@ -242,6 +242,35 @@ TEST(Faults, BuretteStallAndEmptyAtSeveralMoments) {
   EXPECT_NEAR(h.bench->burette().true_delivered_ml(), 0.5, 1e-9);
 }
 
+TEST(Faults, PhotometerSensorFaultsAtRunTime) {
+  Scenario s = demo();
+  s.photometer.noise_absorbance = 0.0;
+  Host h(s);
+  ASSERT_TRUE(h.photometer->zero().has_value());
+  ASSERT_TRUE(h.burette->dose(2.0, 20.0).has_value());
+  auto live = h.photometer->read();
+  ASSERT_TRUE(live.has_value());
+  EXPECT_GT(live->absorbance, 0.01);  // the Cu-EDTA-like band grows with the complex
+  // Dead from now: further titrant changes nothing on the display.
+  ASSERT_TRUE(h.bench->set_fault("photometer", plan(FaultKind::dead, h.clock.now_s())));
+  auto frozen_first = h.photometer->read();
+  ASSERT_TRUE(h.burette->dose(2.0, 20.0).has_value());
+  auto frozen = h.photometer->read();
+  ASSERT_TRUE(frozen_first && frozen);
+  EXPECT_EQ(frozen->absorbance, frozen_first->absorbance);
+  // Out of range on top: refused with the device's reason.
+  ASSERT_TRUE(h.bench->add_fault("photometer", plan(FaultKind::out_of_range, h.clock.now_s())));
+  auto refused = h.photometer->read();
+  ASSERT_FALSE(refused.has_value());
+  EXPECT_EQ(refused.error().kind, ErrorKind::device_refused);
+  EXPECT_NE(refused.error().message.find("range"), std::string::npos) << refused.error().message;
+  // All off: live again, at the 4 mL now in the vessel.
+  h.bench->device("photometer")->clear_faults();
+  auto again = h.photometer->read();
+  ASSERT_TRUE(again.has_value());
+  EXPECT_GT(again->absorbance, frozen->absorbance + 0.005);
+}
+
 TEST(Faults, BalanceNeverStable) {
   Scenario s = demo();
   s.balance.settle_time_s = 0.0;
