@@ -3,8 +3,12 @@
 #include <cmath>
 #include <sstream>
 
+#include "detection/crossing.hpp"
 #include "detection/curve.hpp"
 #include "detection/evaluate.hpp"
+#include "detection/gran.hpp"
+#include "detection/model_fit.hpp"
+#include "detection/segments.hpp"
 
 namespace veq::controller {
 
@@ -39,6 +43,50 @@ std::vector<detection::QualityFlag> doubtful_flags(
       out.push_back(f);
   }
   return out;
+}
+
+/// The final endpoint method and its options, checked before any titrant is
+/// added, so that a misspelt name or option does not surface only after the
+/// whole titration.
+Result<void> check_endpoint_method(const TitrationMethod& m) {
+  const auto where = [&](const Error& e) {
+    return make_error(ErrorKind::invalid_input,
+                      "endpoint method '" + m.endpoint_method + "': " + e.message);
+  };
+  const nlohmann::json& o = m.endpoint_options;
+  if (m.endpoint_method == "derivative") {
+    // One set of derivative options serves the stop rule and the result.
+    if (!o.is_null() && !o.empty()) {
+      return make_error(ErrorKind::invalid_input,
+                        "endpoint method 'derivative' takes its options from the method's "
+                        "derivative settings; leave the endpoint options empty");
+    }
+  } else if (m.endpoint_method == "segments") {
+    if (auto r = detection::segments_options_from_json(o); !r)
+      return where(r.error());
+  } else if (m.endpoint_method == "crossing") {
+    if (auto r = detection::crossing_options_from_json(o); !r)
+      return where(r.error());
+  } else if (m.endpoint_method == "gran") {
+    if (auto r = detection::gran_options_from_json(o); !r)
+      return where(r.error());
+  } else if (m.endpoint_method == "model") {
+    auto r = detection::model_fit_options_from_json(o);
+    if (!r)
+      return where(r.error());
+    if (!r->sample) {
+      return make_error(ErrorKind::invalid_input,
+                        "endpoint method 'model' needs the sample chemistry as its option "
+                        "'sample' (a sample document, docs/chemistry.md)");
+    }
+  } else {
+    std::string known;
+    for (auto name : detection::method_names())
+      known += (known.empty() ? "" : ", ") + std::string(name);
+    return make_error(ErrorKind::invalid_input,
+                      "unknown endpoint method '" + m.endpoint_method + "'; known: " + known);
+  }
+  return {};
 }
 
 /// One titration in progress; the procedure reads top to bottom in run().
@@ -112,6 +160,8 @@ class Titration {
                                                       " mL exceeds the burette's largest dose of " +
                                                       fixed(burette->max_dose_ml, 3) + " mL");
     }
+    if (auto r = check_endpoint_method(method_); !r)
+      return r.error();
     // The vessel must hold the sample and every drop the method may add.
     if (sample_.sample_volume_ml + method_.max_volume_ml > method_.vessel_capacity_ml) {
       return make_error(ErrorKind::invalid_input,
@@ -222,6 +272,10 @@ class Titration {
   RunOutcome evaluate_and_finish() {
     outcome_.titration_time_s = inst_.clock.now_s() - start_s_;
     enter(RunState::evaluating, stop_reason_);
+    // An abort here still ends the run as aborted (the burette is told to
+    // stop all the same); the points stay stored for a later evaluation.
+    if (auto r = check_controls(); !r)
+      return end_with_error(r.error());
     auto c = curve();
     if (!c)
       return end_with_error(c.error());
@@ -269,7 +323,8 @@ class Titration {
         endpoint = e;
       }
     }
-    rinse();
+    if (auto r = rinse(); !r)
+      return end_with_error(r.error());
     if (!endpoint) {
       outcome_.status = store::RunStatus::failed;
       outcome_.reason = "no endpoint found (" + stop_reason_ + ")";
@@ -327,11 +382,12 @@ class Titration {
     return *best;
   }
 
-  void rinse() {
+  Result<void> rinse() {
     // No rinsing device is driven yet (the sample changer comes with the
     // drivers for every role); the state is recorded so that the sequence of
     // a run reads the same when one is added.
     enter(RunState::rinsing, "no rinsing device configured: nothing to rinse");
+    return check_controls();
   }
 
   // ---- steps --------------------------------------------------------------

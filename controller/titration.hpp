@@ -74,13 +74,14 @@ struct TitrationMethod {
   /// The endpoint method that gives the run's result from the finished curve,
   /// by its detection::evaluate() name ("derivative", "model", "segments",
   /// "crossing", "gran"), with its options as JSON in `endpoint_options`.
-  /// Default "derivative" (with `detection`): it needs nothing beyond the
-  /// curve. "model" (option "sample": the sample chemistry) fits the whole
+  /// Default "derivative" (with `detection`, and `endpoint_options` empty): it
+  /// needs nothing beyond the curve. "model" (option "sample": the sample chemistry) fits the whole
   /// curve, so it loses nothing on the uneven steps of adaptive and
   /// model-guided dosing, where the derivative's local fits see fewer points
   /// across a broad break (docs/titration.md, benchmark). When the chosen
   /// method fails or finds no endpoint, the derivative endpoint is used and
-  /// the run's messages say so; both evaluations are stored.
+  /// the run's messages say so; both evaluations are stored. An unknown name
+  /// or option ends the run in preparation, before any titrant is added.
   std::string endpoint_method = "derivative";
   nlohmann::json endpoint_options = nlohmann::json::object();
 };

@@ -128,8 +128,8 @@ class ActOnState final : public RunObserver {
 };
 
 TEST(RunStates, AbortInEveryStateStopsTheBurette) {
-  for (RunState state :
-       {RunState::preparing, RunState::filling, RunState::initial_addition, RunState::titrating}) {
+  for (RunState state : {RunState::preparing, RunState::filling, RunState::initial_addition,
+                         RunState::titrating, RunState::evaluating, RunState::rinsing}) {
     for (bool pause_first : {false, true}) {
       Bench b(demo());
       b.method.initial_volume_ml = 2.0;
@@ -278,6 +278,177 @@ TEST(SettledReadings, ADriftingElectrodeWaitsTheLongestTimeAndRecordsItsDrift) {
   }
 }
 
+TEST(StopConditions, VolumePastTheExpectedEndpoint) {
+  // Expected at 10 mL (the demo sample's equivalence), stop 0.4 mL past it.
+  Bench b(demo());
+  b.method.expected_endpoint_ml = 10.0;
+  b.method.volume_past_endpoint_ml = 0.4;
+  const auto outcome = b.run();
+  ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
+  EXPECT_NE(outcome.reason.find("past the expected endpoint"), std::string::npos) << outcome.reason;
+  const auto points = b.store->load_points(outcome.run_id);
+  ASSERT_TRUE(points.has_value());
+  // The first 0.05 mL step at or beyond 10.4 mL ends it.
+  EXPECT_GE(points->back().volume_ml, 10.4 - 1e-9);
+  EXPECT_LT(points->back().volume_ml, 10.4 + 0.05 + 1e-9);
+}
+
+TEST(StopConditions, SignalLimit) {
+  // The demo curve falls from about +100 mV; a limit at 0 mV lies just past
+  // its break, so the run stops there with the endpoint already complete.
+  Bench b(demo());
+  b.method.use_signal_limit = true;
+  b.method.signal_limit = 0.0;
+  const auto outcome = b.run();
+  EXPECT_NE(outcome.reason.find("signal reached the limit"), std::string::npos) << outcome.reason;
+  const auto points = b.store->load_points(outcome.run_id);
+  ASSERT_TRUE(points.has_value());
+  ASSERT_GE(points->size(), 2u);
+  EXPECT_LE(points->back().signal, 0.0);
+  EXPECT_GT((*points)[points->size() - 2].signal, 0.0);  // the point before was above it
+}
+
+TEST(StopConditions, TimeLimit) {
+  Bench b(demo());
+  b.method.time_limit_s = 300.0;
+  const auto outcome = b.run();
+  EXPECT_NE(outcome.reason.find("time limit"), std::string::npos) << outcome.reason;
+  // Checked before every dose: at most one dose and one settled reading
+  // (under 60 s, the longest wait) beyond the limit.
+  EXPECT_GT(outcome.titration_time_s, 300.0);
+  EXPECT_LT(outcome.titration_time_s, 300.0 + 70.0);
+  EXPECT_LT(b.bench->burette().counter_ml(), 5.0);  // far from the 10 mL endpoint
+}
+
+TEST(RunStates, FillRateAboveTheBurettesLimitIsRefusedBeforeDosing) {
+  Bench b(demo());
+  b.method.fill_rate_ml_per_min = 45.0;  // the virtual burette's maximum is 40
+  const auto outcome = b.run();
+  EXPECT_EQ(outcome.status, store::RunStatus::failed);
+  EXPECT_NE(outcome.reason.find("maximum of 40.00 mL/min"), std::string::npos) << outcome.reason;
+  EXPECT_DOUBLE_EQ(b.bench->burette().counter_ml(), 0.0);
+}
+
+TEST(RunStates, AStepLargerThanTheBurettesLargestDoseIsRefused) {
+  Bench b(demo());
+  b.method.dosing.kind = DosingKind::adaptive_increments;
+  b.method.dosing.largest_step_ml = 6.0;  // the virtual burette doses at most 5 mL at once
+  const auto outcome = b.run();
+  EXPECT_EQ(outcome.status, store::RunStatus::failed);
+  EXPECT_NE(outcome.reason.find("largest dose of 5.000 mL"), std::string::npos) << outcome.reason;
+  EXPECT_DOUBLE_EQ(b.bench->burette().counter_ml(), 0.0);
+}
+
+TEST(RunStates, AnInitialAdditionLargerThanOneDoseIsSplit) {
+  Bench b(demo());
+  b.method.initial_volume_ml = 8.0;  // more than the 5 mL the burette doses at once
+  const auto outcome = b.run();
+  ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
+  for (const auto& line : b.burette_wire->sent) {
+    auto m = drivers::protocol::parse(line.substr(0, line.size() - 1));
+    ASSERT_TRUE(m.has_value());
+    if (m->word == "dose") {
+      EXPECT_LE(*m->number("volume_ml"), 5.0 + 1e-9) << line;
+    }
+  }
+}
+
+TEST(SettledReadings, ASlowMetalWaitsLongerNearTheEndpointAndEveryPointKeepsItsWait) {
+  // Complexation with a 20 s time constant. Far from the endpoint a 0.05 mL
+  // step moves the signal by well under 1 mV and settles within the plain
+  // 10 s window; doses that move it by more than slow_change (10 mV, near the
+  // endpoint) multiply the shortest wait and the window by 4, so those
+  // readings wait at least the 40 s window.
+  auto s = demo();
+  s.sample.reaction_time_s = 20.0;
+  Bench b(s);
+  b.method.settling.slow_reaction_factor = 4.0;
+  b.method.settling.max_wait_s = 240.0;
+  const auto outcome = b.run();
+  ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
+  const auto points = b.store->load_points(outcome.run_id);
+  ASSERT_TRUE(points.has_value());
+  int slow = 0;
+  double far_longest_s = 0.0;
+  for (std::size_t i = 1; i < points->size(); ++i) {
+    const auto& p = (*points)[i];
+    // Every point records its wait and drift, within the rule.
+    EXPECT_GE(p.settle_s, b.method.settling.min_wait_s) << i;
+    EXPECT_LE(p.settle_s, b.method.settling.max_wait_s + 1e-9) << i;
+    EXPECT_TRUE(std::abs(p.drift_per_min) <= 1.0 || p.settle_s >= 240.0) << i;
+    const double change = std::abs(p.signal - (*points)[i - 1].signal);
+    if (change > 10.0) {
+      ++slow;
+      EXPECT_GE(p.settle_s, 4.0 * b.method.settling.window_s - 1.0) << i;
+    }
+    if (std::abs(p.volume_ml - b.truth()) > 2.0)
+      far_longest_s = std::max(far_longest_s, p.settle_s);
+  }
+  EXPECT_GE(slow, 2);  // the break moves the signal by about 200 mV in a few steps
+  EXPECT_LT(far_longest_s, 4.0 * b.method.settling.window_s);
+}
+
+TEST(EndpointMethod, TheModelFitGivesTheResultAndTheDerivativeIsStoredBeside) {
+  auto s = demo();
+  s.sample.metal_conc_mol_per_l = 0.0213;  // not the nominal content the fit starts from
+  Bench b(s);
+  b.method.dosing.kind = DosingKind::adaptive_increments;
+  b.method.endpoint_method = "model";
+  b.method.endpoint_options = {{"sample",
+                                {{"sample_volume_ml", 25.0},
+                                 {"metals", {{{"name", "Ca"}, {"conc_mol_per_l", 0.02}}}},
+                                 {"ph", 10.0},
+                                 {"titrant", {{"name", "EDTA"}, {"conc_mol_per_l", 0.05}}},
+                                 {"signal", {{"kind", "potential"}, {"metal", "Ca"}}}}}};
+  const auto outcome = b.run();
+  ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
+  const auto evaluations = b.store->load_evaluations(outcome.run_id);
+  ASSERT_TRUE(evaluations.has_value());
+  ASSERT_EQ(evaluations->size(), 2u);
+  EXPECT_EQ((*evaluations)[0].method, "derivative");
+  EXPECT_EQ((*evaluations)[1].method, "model");
+  ASSERT_FALSE((*evaluations)[1].endpoints.empty());
+  // The result rests on the model fit's endpoint.
+  EXPECT_DOUBLE_EQ(outcome.endpoint->volume_ml, (*evaluations)[1].endpoints.front().volume_ml);
+  const auto results = b.store->load_results(outcome.run_id);
+  ASSERT_TRUE(results.has_value());
+  ASSERT_FALSE(results->empty());
+  EXPECT_EQ(results->front().evaluation_id, (*evaluations)[1].id);
+  // Truth: 25 mL x 0.0213 mol/L / 0.0500 mol/L = 10.65 mL (simulator); the
+  // benchmark's largest model-fit error on strong breaks is about 0.001 %.
+  EXPECT_NEAR(outcome.endpoint->volume_ml, b.truth(), 1e-4 * b.truth());
+  EXPECT_NEAR(b.truth(), 10.65, 1e-9);
+}
+
+TEST(EndpointMethod, AnUnknownMethodOrAMissingSampleIsRefusedBeforeDosing) {
+  {
+    Bench b(demo());
+    b.method.endpoint_method = "steepest";
+    const auto outcome = b.run();
+    EXPECT_EQ(outcome.status, store::RunStatus::failed);
+    EXPECT_NE(outcome.reason.find("unknown endpoint method 'steepest'"), std::string::npos)
+        << outcome.reason;
+    EXPECT_NE(outcome.reason.find("model"), std::string::npos);  // lists the known ones
+    EXPECT_DOUBLE_EQ(b.bench->burette().counter_ml(), 0.0);
+  }
+  {
+    Bench b(demo());
+    b.method.endpoint_method = "model";
+    const auto outcome = b.run();
+    EXPECT_EQ(outcome.status, store::RunStatus::failed);
+    EXPECT_NE(outcome.reason.find("option 'sample'"), std::string::npos) << outcome.reason;
+    EXPECT_DOUBLE_EQ(b.bench->burette().counter_ml(), 0.0);
+  }
+  {
+    Bench b(demo());
+    b.method.endpoint_method = "model";
+    b.method.endpoint_options = {{"fit_lags", true}};
+    const auto outcome = b.run();
+    EXPECT_EQ(outcome.status, store::RunStatus::failed);
+    EXPECT_NE(outcome.reason.find("fit_lags"), std::string::npos) << outcome.reason;
+  }
+}
+
 // The three kinds of sample of the dosing benchmark.
 enum class Kind { strong, weak, slow };
 
@@ -336,6 +507,32 @@ INSTANTIATE_TEST_SUITE_P(AllStrategies, StrategyOnSample,
                                                               DosingKind::model_guided),
                                             ::testing::Values(Kind::strong, Kind::weak,
                                                               Kind::slow)));
+
+TEST(ModelGuidedDosing, JudgedByTheModelFitOnAWeakBreak) {
+  // The weak break of the benchmark (conditional log K near 6.5), judged and
+  // evaluated by the model fit: the run stops by itself once two successive
+  // fits agree, and every endpoint lies within 0.05 % of the truth (the
+  // benchmark's largest error over 50 samples is about 0.013 %).
+  for (int seed = 1; seed <= 4; ++seed) {
+    auto s = sample_of(Kind::weak);
+    s.seed = static_cast<std::uint64_t>(seed);
+    s.sample.metal_conc_mol_per_l = 0.018 + 0.001 * seed;
+    Bench b(s);
+    configure(b.method, DosingKind::model_guided, Kind::weak, b.scenario);
+    b.method.endpoint_method = "model";
+    b.method.endpoint_options = {{"sample",
+                                  {{"sample_volume_ml", 25.0},
+                                   {"metals", {{{"name", "Ca"}, {"conc_mol_per_l", 0.02}}}},
+                                   {"ph", 10.0},
+                                   {"titrant", {{"name", "EDTA"}, {"conc_mol_per_l", 0.05}}},
+                                   {"signal", {{"kind", "potential"}, {"metal", "Ca"}}}}}};
+    const auto outcome = b.run();
+    ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
+    EXPECT_NE(outcome.reason.find("points past it"), std::string::npos) << outcome.reason;
+    EXPECT_NEAR(outcome.endpoint->volume_ml, b.truth(), 5e-4 * b.truth()) << "seed " << seed;
+    EXPECT_LT(outcome.point_count, 60u);  // fixed 0.05 mL steps take about 220
+  }
+}
 
 TEST(DosingPlan, JsonRoundTripAndErrors) {
   DosingPlan p;
