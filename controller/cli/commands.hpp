@@ -15,6 +15,8 @@ void add_chemistry_commands(CLI::App& app);
 void add_evaluate_commands(CLI::App& app);
 /// `veq run`: one titration against instruments on ports.
 void add_run_command(CLI::App& app);
+/// `veq user add`, `veq sign-off`, `veq choose-evaluation`, `veq audit verify|list`.
+void add_audit_commands(CLI::App& app);
 /// `veq trials`: endpoint methods on seeded simulated curves (for developers).
 void add_trials_command(CLI::App& app);
 

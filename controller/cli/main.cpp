@@ -19,6 +19,7 @@ int main(int argc, char** argv) {
   veq::cli::add_evaluate_commands(app);
   veq::cli::add_run_command(app);
   veq::cli::add_trials_command(app);
+  veq::cli::add_audit_commands(app);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

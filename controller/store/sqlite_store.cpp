@@ -191,6 +191,64 @@ BEGIN SELECT RAISE(ABORT, 'calibrations cannot be changed'); END;
 CREATE TRIGGER calibrations_are_undeletable BEFORE DELETE ON calibrations
 BEGIN SELECT RAISE(ABORT, 'calibrations cannot be deleted'); END;
 )sql",
+    // 4: users, the tamper-evident audit trail with its keyed head, reviewers'
+    // sign-offs and the evaluation each run's results use (see
+    // controller/store/audit_trail.hpp). All of it append-only but the head.
+    R"sql(
+CREATE TABLE users (
+  name TEXT PRIMARY KEY,
+  role TEXT NOT NULL CHECK (role IN ('analyst', 'reviewer', 'administrator')),
+  password_hash TEXT NOT NULL,
+  created_utc TEXT NOT NULL,
+  active INTEGER NOT NULL DEFAULT 1 CHECK (active IN (0, 1))
+);
+CREATE TABLE audit_records (
+  sequence INTEGER PRIMARY KEY,
+  at_utc TEXT NOT NULL,
+  user_name TEXT NOT NULL,
+  action TEXT NOT NULL,
+  subject TEXT NOT NULL,
+  old_value TEXT NOT NULL,
+  new_value TEXT NOT NULL,
+  reason TEXT NOT NULL,
+  previous_hash TEXT NOT NULL,
+  hash TEXT NOT NULL
+);
+CREATE TRIGGER audit_records_are_unchangeable BEFORE UPDATE ON audit_records
+BEGIN SELECT RAISE(ABORT, 'audit records cannot be changed'); END;
+CREATE TRIGGER audit_records_are_undeletable BEFORE DELETE ON audit_records
+BEGIN SELECT RAISE(ABORT, 'audit records cannot be deleted'); END;
+CREATE TABLE audit_head (
+  id INTEGER PRIMARY KEY CHECK (id = 1),
+  sequence INTEGER NOT NULL,
+  tag TEXT NOT NULL
+);
+CREATE TABLE sign_offs (
+  id INTEGER PRIMARY KEY,
+  run_id INTEGER NOT NULL REFERENCES runs(id),
+  reviewer TEXT NOT NULL REFERENCES users(name),
+  meaning TEXT NOT NULL,
+  signed_utc TEXT NOT NULL,
+  audit_sequence INTEGER NOT NULL REFERENCES audit_records(sequence)
+);
+CREATE TRIGGER sign_offs_are_unchangeable BEFORE UPDATE ON sign_offs
+BEGIN SELECT RAISE(ABORT, 'sign-offs cannot be changed'); END;
+CREATE TRIGGER sign_offs_are_undeletable BEFORE DELETE ON sign_offs
+BEGIN SELECT RAISE(ABORT, 'sign-offs cannot be deleted'); END;
+CREATE TABLE evaluation_choices (
+  id INTEGER PRIMARY KEY,
+  run_id INTEGER NOT NULL REFERENCES runs(id),
+  evaluation_id INTEGER NOT NULL REFERENCES evaluations(id),
+  user_name TEXT NOT NULL,
+  reason TEXT NOT NULL CHECK (reason <> ''),
+  chosen_utc TEXT NOT NULL
+);
+CREATE INDEX evaluation_choices_by_run ON evaluation_choices(run_id);
+CREATE TRIGGER evaluation_choices_are_unchangeable BEFORE UPDATE ON evaluation_choices
+BEGIN SELECT RAISE(ABORT, 'evaluation choices cannot be changed'); END;
+CREATE TRIGGER evaluation_choices_are_undeletable BEFORE DELETE ON evaluation_choices
+BEGIN SELECT RAISE(ABORT, 'evaluation choices cannot be deleted'); END;
+)sql",
 };
 constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
 static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");

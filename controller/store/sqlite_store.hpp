@@ -12,7 +12,7 @@ struct sqlite3;
 namespace veq::store {
 
 /// Schema version this build writes; older files are migrated on open.
-inline constexpr int kSchemaVersion = 3;
+inline constexpr int kSchemaVersion = 4;
 
 /// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
 std::string default_database_path();
