@@ -14,11 +14,10 @@
 // Counter titrations_per_s: 100-point titrations per second of CPU;
 // lines_per_titration: protocol lines (requests and replies) per titration.
 //
-// Checksum and ChecksumByTable: the protocol's CRC-16/CCITT of one 48-byte
-// line as drivers/native_protocol.cpp computes it (bit by bit) and by a
-// 256-entry table, the same polynomial; both must agree (checked). Every
-// line is checksummed twice (sent and received), so lines_per_titration x 2
-// x their difference is what a table would save per titration.
+// Checksum: the protocol's CRC-16/CCITT of one 48-byte line as
+// drivers/native_protocol.cpp computes it (by a 256-entry table). Every line
+// is checksummed twice (sent and received): lines_per_titration x 2 x this
+// is its share of a titration.
 #include <benchmark/benchmark.h>
 
 #include <array>
@@ -168,40 +167,7 @@ void Checksum(benchmark::State& state) {
   benchmark::DoNotOptimize(sink);
 }
 
-std::array<std::uint16_t, 256> crc_table() {
-  std::array<std::uint16_t, 256> t{};
-  for (unsigned i = 0; i < 256; ++i) {
-    std::uint16_t crc = static_cast<std::uint16_t>(i << 8);
-    for (int bit = 0; bit < 8; ++bit)
-      crc = (crc & 0x8000) ? static_cast<std::uint16_t>((crc << 1) ^ 0x1021)
-                           : static_cast<std::uint16_t>(crc << 1);
-    t[i] = crc;
-  }
-  return t;
-}
-
-std::uint16_t crc_by_table(std::string_view bytes) {
-  static const auto table = crc_table();
-  std::uint16_t crc = 0xFFFF;
-  for (unsigned char byte : bytes)
-    crc = static_cast<std::uint16_t>((crc << 8) ^ table[((crc >> 8) ^ byte) & 0xFF]);
-  return crc;
-}
-
-void ChecksumByTable(benchmark::State& state) {
-  const std::string line(kLine, 48);
-  if (crc_by_table(line) != veq::drivers::protocol::crc16_ccitt(line))
-    state.SkipWithError("table CRC differs from the protocol's");
-  unsigned sink = 0;
-  for (auto _ : state) {
-    benchmark::DoNotOptimize(line.data());
-    sink += crc_by_table(line);
-  }
-  benchmark::DoNotOptimize(sink);
-}
-
 BENCHMARK(Checksum);
-BENCHMARK(ChecksumByTable);
 BENCHMARK(OneToOne)->Unit(benchmark::kMicrosecond);
 BENCHMARK(General)->Unit(benchmark::kMicrosecond);
 BENCHMARK(Replay)->Unit(benchmark::kMicrosecond);
