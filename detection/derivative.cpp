@@ -303,7 +303,8 @@ Evaluation find_endpoints_by_derivative(const Curve& curve, const DerivativeOpti
     const double a = std::abs(slope[i]);
     // Non-short-circuit test: on a noisy curve a third of the points are
     // local maxima, so a branch per comparison mispredicts often.
-    if (!((a > std::abs(slope[i - 1])) & (a >= std::abs(slope[i + 1]))))
+    if ((static_cast<int>(a > std::abs(slope[i - 1])) &
+         static_cast<int>(a >= std::abs(slope[i + 1]))) == 0)
       continue;
     const bool rising = slope[i] > 0.0;
     auto same_sign = [&](std::size_t j) { return rising ? slope[j] > 0.0 : slope[j] < 0.0; };

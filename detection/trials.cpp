@@ -182,7 +182,11 @@ veq::Result<TrialScenario> trial_scenario_from_json(const nlohmann::json& json) 
       t = *builtin;
     t.name = json["name"].get<std::string>();
   }
-  for (const auto& [key, value] : json.items()) {
+  for (const auto& item : json.items()) {
+    // Named references, not a structured binding: clang 14 (the fuzzing
+    // build) cannot capture bindings in the lambdas below.
+    const std::string& key = item.key();
+    const nlohmann::json& value = item.value();
     auto number = [&](double& field) -> std::optional<veq::Error> {
       if (!value.is_number() || !std::isfinite(value.get<double>()))
         return invalid("trial scenario field '" + key + "' must be a number");

@@ -43,8 +43,8 @@ TEST(Trials, SimulationIsSeededAndItsTruthIsTheChemistry) {
   // concentration, within the scenario's spread of the nominal 10.0 mL.
   EXPECT_NEAR(a.equivalence_ml[0], 10.0, 10.0 * 0.05 + 1e-12);
   // Without noise and spread the curve is the engine's predicted curve
-  // (pCa through E = E0 - (S/2) pCa with the Nernst slope S = R T ln(10)/F
-  // = 0.198416 mV/K x 298.15 K, as the engine takes it).
+  // (pCa through E = E0 - (S/2) pCa with the Nernst slope S = R T ln(10)/F,
+  // R = 8.314462618 J/(mol K) and F = 96485.33212 C/mol from CODATA 2018).
   scenario.noise = 0.0;
   scenario.amount_spread_percent = 0.0;
   scenario.electrode_zero_spread_mv = 0.0;
@@ -56,7 +56,8 @@ TEST(Trials, SimulationIsSeededAndItsTruthIsTheChemistry) {
   chemistry::Speciation s;
   for (std::size_t i = 0; i < exact.curve.size(); i += 17) {
     ASSERT_TRUE(model.solve_at(exact.curve.volume_ml()[i], s));
-    const double expected = 150.0 - 0.198416 * 298.15 / 2.0 * model.p_metal(s, 0);
+    const double nernst_mv = 1000.0 * 8.314462618 * 298.15 * std::log(10.0) / 96485.33212;
+    const double expected = 150.0 - nernst_mv / 2.0 * model.p_metal(s, 0);
     EXPECT_NEAR(exact.curve.signal()[i], expected, 1e-6);
   }
   // Two metals: cumulative volumes, calcium (stronger) first.

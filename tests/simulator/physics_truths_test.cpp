@@ -182,10 +182,9 @@ TEST(Physics, ElectrodeMatchesThePredictedCurveWithNoiseOff) {
     EXPECT_NEAR(bench.electrode().equilibrium_potential_mv(p.volume_ml),
                 120.0 - slope_mv / 2.0 * p.p_metal[0], 1e-6)
         << "at " << p.volume_ml << " mL";
-    // And its potential: the engine rounds R ln10 / F to 0.198416 mV/K where
-    // CODATA 2018 gives 0.1984214 mV/K, 3e-5 of E - E0.
+    // And its potential: both take R ln10 / F from CODATA 2018 R and F.
     EXPECT_NEAR(bench.electrode().equilibrium_potential_mv(p.volume_ml) - 120.0, p.signal - 120.0,
-                3e-5 * std::fabs(p.signal - 120.0) + 1e-6)
+                1e-9 * std::fabs(p.signal - 120.0) + 1e-6)
         << "at " << p.volume_ml << " mL";
   }
   // Textbook check at 0 mL: pCa = 2 and E = E0 + (S/2) log10 [Ca], S the
