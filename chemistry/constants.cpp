@@ -208,7 +208,7 @@ Result<ConstantsLibrary> ConstantsLibrary::parse(std::string_view json_text) {
   json root;
   try {
     root = json::parse(json_text.begin(), json_text.end());
-  } catch (const json::parse_error& e) {
+  } catch (const json::exception& e) {  // parse_error, or out_of_range for a number too large
     return make_error(ErrorKind::invalid_input,
                       std::string("constants library is not valid JSON: ") + e.what());
   }

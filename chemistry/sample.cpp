@@ -101,7 +101,7 @@ Result<SampleComposition> parse_sample_json(std::string_view document) {
   json root;
   try {
     root = json::parse(document.begin(), document.end());
-  } catch (const json::parse_error& e) {
+  } catch (const json::exception& e) {  // parse_error, or out_of_range for a number too large
     return make_error(ErrorKind::invalid_input,
                       std::string("sample document is not valid JSON: ") + e.what());
   }

@@ -26,7 +26,7 @@ for t in "${targets[@]}"; do
   cp -r "tests/fuzz/corpus/$t/." "$work/"
   log="$build/$t.log"
   if ! "$build/bin/$t" "$work" -max_total_time="$seconds" -max_len=8192 -timeout=10 \
-      -artifact_prefix="tests/fuzz/corpus/$t/crash-" >"$log" 2>&1; then
+      -artifact_prefix="tests/fuzz/corpus/$t/" >"$log" 2>&1; then
     tail -40 "$log"
     echo "fuzz: $t failed; the input is in tests/fuzz/corpus/$t/crash-*" >&2
     exit 1

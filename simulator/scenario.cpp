@@ -231,7 +231,7 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
   json doc;
   try {
     doc = json::parse(json_text.begin(), json_text.end());
-  } catch (const json::parse_error& e) {
+  } catch (const json::exception& e) {  // parse_error, or out_of_range for a number too large
     // Turn the byte offset into a line number for people.
     std::size_t line = 1;
     for (std::size_t i = 0; i < e.byte && i < json_text.size(); ++i) {
