@@ -231,7 +231,7 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
   json doc;
   try {
     doc = json::parse(json_text.begin(), json_text.end());
-  } catch (const json::exception& e) {  // parse_error, or out_of_range for a number too large
+  } catch (const json::parse_error& e) {
     // Turn the byte offset into a line number for people.
     std::size_t line = 1;
     for (std::size_t i = 0; i < e.byte && i < json_text.size(); ++i) {
@@ -240,6 +240,9 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     }
     return make_error(ErrorKind::invalid_input, r.source + ": line " + std::to_string(line) +
                                                     ": not valid JSON (" + e.what() + ")");
+  } catch (const json::exception& e) {  // out_of_range: a number too large for a double
+    return make_error(ErrorKind::invalid_input,
+                      r.source + ": not a usable JSON document (" + e.what() + ")");
   }
   if (!doc.is_object())
     return make_error(ErrorKind::invalid_input, r.source + ": not a JSON object");
