@@ -559,11 +559,18 @@ std::string trials_csv(std::span<const std::string> labels,
          "within_2u,flags\n";
   for (std::size_t m = 0; m < labels.size() && m < outcomes.size(); ++m) {
     for (const auto& o : outcomes[m]) {
+      // Appended piece by piece: GCC 12 at -O3 warns (-Wrestrict, a false
+      // alarm) about a temporary string built from a literal and appended.
       std::string flags;
+      auto add_flag = [&flags](const char* name) {
+        if (!flags.empty())
+          flags += ' ';
+        flags += name;
+      };
       for (QualityFlag f : o.flags)
-        flags += (flags.empty() ? "" : " ") + std::string(quality_flag_name(f));
+        add_flag(quality_flag_name(f));
       if (!o.error.empty())
-        flags += (flags.empty() ? "" : " ") + std::string("error");
+        add_flag("error");
       const auto match = match_endpoints(o);
       for (std::size_t k = 0; k < o.equivalence_ml.size(); ++k) {
         // Labels may hold commas (method options): quote them.
