@@ -401,6 +401,30 @@ Result<std::unique_ptr<SqliteStore>> SqliteStore::open(const std::string& path) 
                           "); use a newer veq. The file was left unchanged");
   }
 
+  // A damaged file (a bad disk, a copy cut short, an edit with the wrong
+  // tool) is refused before anything is written to it: SQLite's quick check
+  // reads every page once (about 0.3 s for 60 MB here) and names the first
+  // problems it finds.
+  if (tables > 0) {
+    Statement q(db, "PRAGMA quick_check(3)");
+    std::string problems;
+    int step = q.ok() ? q.step() : SQLITE_ERROR;
+    while (step == SQLITE_ROW) {
+      const std::string line = q.text(0);
+      if (line != "ok")
+        problems += (problems.empty() ? "" : "; ") + line;
+      step = q.step();
+    }
+    if (step != SQLITE_DONE && problems.empty())
+      problems = sqlite3_errmsg(db);
+    if (!problems.empty()) {
+      return make_error(ErrorKind::storage,
+                        "'" + path + "' is damaged (SQLite quick check: " + problems +
+                            "); it was left unchanged. Restore it from a backup, or recover "
+                            "what is readable with the sqlite3 tool's .recover command");
+    }
+  }
+
   // WAL: readers never block the writer and a crash leaves the file intact.
   // synchronous=FULL: each commit is fsynced, so an acknowledged point survives
   // a power cut, not only a killed process (about 0.4 ms per point here).

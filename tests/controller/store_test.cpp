@@ -170,6 +170,55 @@ TEST(SqliteStore, RefusesANewerSchemaAndLeavesItAlone) {
   EXPECT_EQ(before, after);
 }
 
+TEST(SqliteStore, RefusesADamagedFileAndLeavesItAlone) {
+  // A veq store whose points table has one page overwritten, as a bad disk
+  // or a careless edit would leave it: refused before anything is written,
+  // with SQLite's own words for the damage.
+  TempDir dir;
+  const auto path = dir.file("damaged.sqlite");
+  {
+    auto store = SqliteStore::open(path);
+    ASSERT_TRUE(store.has_value());
+    auto id = (*store)->begin_run(sample_run());
+    ASSERT_TRUE(id.has_value());
+    for (int i = 0; i < 500; ++i) {
+      PointRecord p{i, 10.0 * i, 0.02 * i, -100.0 - 0.1 * i, 25.0, 0.2, 4.0};
+      ASSERT_TRUE((*store)->append_point(*id, p).has_value());
+    }
+  }  // closing the last connection folds the WAL into the file
+  std::int64_t root = 0, page_size = 0;
+  {
+    sqlite3* db = nullptr;
+    sqlite3_open(path.c_str(), &db);
+    sqlite3_stmt* s = nullptr;
+    sqlite3_prepare_v2(db, "SELECT rootpage FROM sqlite_schema WHERE name = 'points'", -1, &s,
+                       nullptr);
+    ASSERT_EQ(sqlite3_step(s), SQLITE_ROW);
+    root = sqlite3_column_int64(s, 0);
+    sqlite3_finalize(s);
+    sqlite3_prepare_v2(db, "PRAGMA page_size", -1, &s, nullptr);
+    ASSERT_EQ(sqlite3_step(s), SQLITE_ROW);
+    page_size = sqlite3_column_int64(s, 0);
+    sqlite3_finalize(s);
+    sqlite3_close(db);
+  }
+  ASSERT_GT(root, 1);
+  {
+    std::fstream f(path, std::ios::in | std::ios::out | std::ios::binary);
+    f.seekp((root - 1) * page_size);
+    const std::string garbage(static_cast<std::size_t>(page_size), '\xff');
+    f.write(garbage.data(), static_cast<std::streamsize>(garbage.size()));
+  }
+  std::string before, after;
+  size_and_bytes(path, &before);
+  auto store = SqliteStore::open(path);
+  ASSERT_FALSE(store.has_value());
+  EXPECT_NE(store.error().message.find("is damaged"), std::string::npos) << store.error().message;
+  EXPECT_NE(store.error().message.find("left unchanged"), std::string::npos);
+  size_and_bytes(path, &after);
+  EXPECT_EQ(before, after);
+}
+
 TEST(SqliteStore, RefusesAFileThatIsNotSqlite) {
   TempDir dir;
   const auto path = dir.file("text.sqlite");
