@@ -10,7 +10,8 @@ set -euo pipefail
 cd "$(dirname "${BASH_SOURCE[0]}")/.."
 seconds="${1:-30}"
 build="${2:-build-fuzz}"
-targets=(protocol_line_fuzz device_profile_fuzz curve_csv_fuzz sample_json_fuzz scenario_fuzz)
+targets=(protocol_line_fuzz device_profile_fuzz curve_csv_fuzz sample_json_fuzz scenario_fuzz
+  method_file_fuzz)
 
 cmake -S . -B "$build" -G Ninja -DCMAKE_BUILD_TYPE=RelWithDebInfo -DVEQ_WERROR=ON \
   -DCMAKE_CXX_COMPILER=clang++ -DVEQ_FUZZ=ON -DVEQ_SANITIZE=address,undefined \
