@@ -13,9 +13,9 @@
 #include "common/result.hpp"
 #include "controller/audit/audit.hpp"
 
-struct sqlite3;
-
 namespace veq::store {
+
+class SqliteStore;
 
 /// A reviewer's signature on a run's results.
 struct SignOff {
@@ -89,14 +89,14 @@ class AuditTrail {
   veq::Result<controller::audit::Verification> verify();
 
  private:
-  AuditTrail(sqlite3* db, std::vector<std::uint8_t> key) : db_(db), key_(std::move(key)) {}
+  AuditTrail(std::unique_ptr<SqliteStore> store, std::vector<std::uint8_t> key);
   veq::Result<controller::audit::AuditRecord> append_locked(
       const std::string& user, const std::string& action, const std::string& subject,
       const std::string& old_value, const std::string& new_value, const std::string& reason);
   veq::Result<void> exec(const char* sql);
   veq::Error storage_error(const std::string& what) const;
 
-  sqlite3* db_;
+  std::unique_ptr<SqliteStore> store_;  ///< its connection, checks and settings
   std::vector<std::uint8_t> key_;
   controller::audit::PasswordCost cost_;
 };

@@ -14,44 +14,28 @@ using detail::Statement;
 veq::Result<std::unique_ptr<AuditTrail>> AuditTrail::open(const std::string& database,
                                                           const std::string& key_path,
                                                           bool create_key) {
-  // The store's own opening refuses foreign and newer files and migrates.
-  {
-    auto store = SqliteStore::open(database);
-    if (!store)
-      return store.error();
-  }
+  // The store's own opening refuses foreign, newer and damaged files and
+  // migrates; the trail then works on its connection.
+  auto store = SqliteStore::open(database);
+  if (!store)
+    return store.error();
   auto key = audit::load_key(key_path, create_key);
   if (!key)
     return key.error();
-  sqlite3* db = nullptr;
-  if (sqlite3_open_v2(database.c_str(), &db, SQLITE_OPEN_READWRITE, nullptr) != SQLITE_OK) {
-    const std::string message = db ? sqlite3_errmsg(db) : "out of memory";
-    sqlite3_close(db);
-    return make_error(ErrorKind::storage, database + ": " + message);
-  }
-  sqlite3_busy_timeout(db, 5000);
-  std::unique_ptr<AuditTrail> trail(new AuditTrail(db, std::move(*key)));
-  if (auto r = trail->exec("PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON"); !r)
-    return r.error();
-  return trail;
+  return std::unique_ptr<AuditTrail>(new AuditTrail(std::move(*store), std::move(*key)));
 }
 
-AuditTrail::~AuditTrail() {
-  sqlite3_close(db_);
-}
+AuditTrail::AuditTrail(std::unique_ptr<SqliteStore> store, std::vector<std::uint8_t> key)
+    : store_(std::move(store)), key_(std::move(key)) {}
+
+AuditTrail::~AuditTrail() = default;
 
 veq::Result<void> AuditTrail::exec(const char* sql) {
-  char* message = nullptr;
-  if (sqlite3_exec(db_, sql, nullptr, nullptr, &message) != SQLITE_OK) {
-    const std::string text = message ? message : "unknown error";
-    sqlite3_free(message);
-    return make_error(ErrorKind::storage, text);
-  }
-  return {};
+  return store_->exec(sql);
 }
 
 veq::Error AuditTrail::storage_error(const std::string& what) const {
-  return make_error(ErrorKind::storage, what + ": " + sqlite3_errmsg(db_));
+  return store_->storage_error(what);
 }
 
 veq::Result<audit::AuditRecord> AuditTrail::append_locked(
@@ -60,7 +44,8 @@ veq::Result<audit::AuditRecord> AuditTrail::append_locked(
   audit::AuditRecord last;
   bool have_last = false;
   {
-    Statement s(db_, "SELECT sequence, hash FROM audit_records ORDER BY sequence DESC LIMIT 1");
+    Statement s(store_->db_,
+                "SELECT sequence, hash FROM audit_records ORDER BY sequence DESC LIMIT 1");
     const int rc = s.step();
     if (rc == SQLITE_ROW) {
       last.sequence = s.integer(0);
@@ -81,7 +66,7 @@ veq::Result<audit::AuditRecord> AuditTrail::append_locked(
   audit::chain(r, have_last ? &last : nullptr);
   {
     Statement s(
-        db_,
+        store_->db_,
         "INSERT INTO audit_records (sequence, at_utc, user_name, action, subject, old_value, "
         "new_value, reason, previous_hash, hash) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, "
         "?9, ?10)");
@@ -99,7 +84,7 @@ veq::Result<audit::AuditRecord> AuditTrail::append_locked(
       return storage_error("cannot append to the audit trail");
   }
   {
-    Statement s(db_,
+    Statement s(store_->db_,
                 "INSERT INTO audit_head (id, sequence, tag) VALUES (1, ?1, ?2) "
                 "ON CONFLICT(id) DO UPDATE SET sequence = excluded.sequence, tag = excluded.tag");
     s.bind(1, r.sequence).bind(2, audit::head_tag(key_, r.sequence, r.hash));
@@ -128,7 +113,7 @@ veq::Result<audit::AuditRecord> AuditTrail::append(
 
 veq::Result<audit::Role> AuditTrail::authenticate(const std::string& name,
                                                   const std::string& password) {
-  Statement s(db_, "SELECT role, password_hash FROM users WHERE name = ?1 AND active = 1");
+  Statement s(store_->db_, "SELECT role, password_hash FROM users WHERE name = ?1 AND active = 1");
   s.bind(1, name);
   const int rc = s.step();
   if (rc != SQLITE_ROW && rc != SQLITE_DONE)
@@ -160,7 +145,7 @@ veq::Result<void> AuditTrail::add_user(const std::string& by, const std::string&
   };
   std::int64_t users = 0;
   {
-    Statement s(db_, "SELECT COUNT(*) FROM users");
+    Statement s(store_->db_, "SELECT COUNT(*) FROM users");
     if (s.step() != SQLITE_ROW)
       return fail(storage_error("cannot read users"));
     users = s.integer(0);
@@ -183,7 +168,7 @@ veq::Result<void> AuditTrail::add_user(const std::string& by, const std::string&
     }
   }
   {
-    Statement s(db_,
+    Statement s(store_->db_,
                 "INSERT INTO users (name, role, password_hash, created_utc) VALUES (?1, ?2, ?3, "
                 "?4)");
     s.bind(1, name)
@@ -221,7 +206,7 @@ veq::Result<SignOff> AuditTrail::sign_off(const std::string& reviewer, const std
     return e;
   };
   {
-    Statement s(db_, "SELECT 1 FROM runs WHERE id = ?1");
+    Statement s(store_->db_, "SELECT 1 FROM runs WHERE id = ?1");
     s.bind(1, run_id);
     if (s.step() != SQLITE_ROW) {
       return fail(
@@ -234,7 +219,7 @@ veq::Result<SignOff> AuditTrail::sign_off(const std::string& reviewer, const std
     return fail(record.error());
   SignOff so{0, run_id, reviewer, meaning, record->at_utc, record->sequence};
   {
-    Statement s(db_,
+    Statement s(store_->db_,
                 "INSERT INTO sign_offs (run_id, reviewer, meaning, signed_utc, audit_sequence) "
                 "VALUES (?1, ?2, ?3, ?4, ?5)");
     s.bind(1, run_id)
@@ -244,7 +229,7 @@ veq::Result<SignOff> AuditTrail::sign_off(const std::string& reviewer, const std
         .bind(5, so.audit_sequence);
     if (s.step() != SQLITE_DONE)
       return fail(storage_error("cannot store the sign-off"));
-    so.id = sqlite3_last_insert_rowid(db_);
+    so.id = sqlite3_last_insert_rowid(store_->db_);
   }
   if (auto r = exec("COMMIT"); !r)
     return fail(r.error());
@@ -252,7 +237,7 @@ veq::Result<SignOff> AuditTrail::sign_off(const std::string& reviewer, const std
 }
 
 veq::Result<std::vector<SignOff>> AuditTrail::sign_offs(std::int64_t run_id) {
-  Statement s(db_,
+  Statement s(store_->db_,
               "SELECT id, run_id, reviewer, meaning, signed_utc, audit_sequence FROM sign_offs "
               "WHERE run_id = ?1 ORDER BY id");
   s.bind(1, run_id);
@@ -288,7 +273,7 @@ veq::Result<void> AuditTrail::choose_evaluation(const std::string& user,
     return e;
   };
   {
-    Statement s(db_, "SELECT 1 FROM evaluations WHERE id = ?1 AND run_id = ?2");
+    Statement s(store_->db_, "SELECT 1 FROM evaluations WHERE id = ?1 AND run_id = ?2");
     s.bind(1, evaluation_id).bind(2, run_id);
     if (s.step() != SQLITE_ROW) {
       return fail(make_error(ErrorKind::not_found, "evaluation " + std::to_string(evaluation_id) +
@@ -304,7 +289,7 @@ veq::Result<void> AuditTrail::choose_evaluation(const std::string& user,
     return fail(record.error());
   {
     Statement s(
-        db_,
+        store_->db_,
         "INSERT INTO evaluation_choices (run_id, evaluation_id, user_name, reason, chosen_utc) "
         "VALUES (?1, ?2, ?3, ?4, ?5)");
     s.bind(1, run_id).bind(2, evaluation_id).bind(3, user).bind(4, reason).bind(5, record->at_utc);
@@ -317,7 +302,7 @@ veq::Result<void> AuditTrail::choose_evaluation(const std::string& user,
 }
 
 veq::Result<std::optional<EvaluationChoice>> AuditTrail::evaluation_choice(std::int64_t run_id) {
-  Statement s(db_,
+  Statement s(store_->db_,
               "SELECT run_id, evaluation_id, user_name, reason, chosen_utc FROM evaluation_choices "
               "WHERE run_id = ?1 ORDER BY id DESC LIMIT 1");
   s.bind(1, run_id);
@@ -331,7 +316,7 @@ veq::Result<std::optional<EvaluationChoice>> AuditTrail::evaluation_choice(std::
 }
 
 veq::Result<std::vector<audit::AuditRecord>> AuditTrail::records() {
-  Statement s(db_,
+  Statement s(store_->db_,
               "SELECT sequence, at_utc, user_name, action, subject, old_value, new_value, reason, "
               "previous_hash, hash FROM audit_records ORDER BY sequence");
   std::vector<audit::AuditRecord> out;
@@ -352,7 +337,7 @@ veq::Result<audit::Verification> AuditTrail::verify() {
   std::int64_t head_sequence = 0;
   std::string tag;
   {
-    Statement s(db_, "SELECT sequence, tag FROM audit_head WHERE id = 1");
+    Statement s(store_->db_, "SELECT sequence, tag FROM audit_head WHERE id = 1");
     const int rc = s.step();
     if (rc == SQLITE_ROW) {
       head_sequence = s.integer(0);

@@ -69,6 +69,8 @@ class SqliteStore final : public RunStore, public MethodStore {
   Result<int> schema_version();
 
  private:
+  // The audit trail lives in the same file and works on the same connection.
+  friend class AuditTrail;
   SqliteStore(sqlite3* db, std::string path);
   Result<void> exec(const char* sql);
   Error storage_error(const std::string& what) const;
