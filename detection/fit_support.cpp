@@ -135,6 +135,14 @@ Minimum minimise(const std::function<double(double)>& f, double lo, double hi, d
   return {x, fx, evaluations};
 }
 
+veq::Result<chemistry::SampleComposition> sample_from_option(const nlohmann::json& value) {
+  if (!value.is_object()) {
+    return veq::make_error(veq::ErrorKind::invalid_input,
+                           "must be a sample document (a JSON object)");
+  }
+  return chemistry::parse_sample_json(value.dump());
+}
+
 veq::Result<SampleChemistry> read_sample(const chemistry::SampleComposition& sample,
                                          const Curve& curve,
                                          const chemistry::ConstantsLibrary& library) {

@@ -10,6 +10,8 @@
 #include <string>
 #include <vector>
 
+#include <nlohmann/json.hpp>
+
 #include "chemistry/constants.hpp"
 #include "chemistry/equilibrium.hpp"
 #include "chemistry/prediction.hpp"
@@ -67,6 +69,11 @@ struct SampleChemistry {
   /// pH follows the proton balance).
   bool metal_fraction_varies = false;
 };
+
+/// The "sample" option of an endpoint method: a sample document given as a
+/// JSON object. The error says what is wrong with it (the caller names the
+/// option).
+veq::Result<chemistry::SampleComposition> sample_from_option(const nlohmann::json& value);
 
 /// Reads the sample for a curve: takes the curve's sample volume when it has
 /// one, checks the sample against the library. Errors name the problem.

@@ -100,9 +100,7 @@ veq::Result<GranOptions> gran_options_from_json(const nlohmann::json& json) {
         return option_error(key, "must be an integer");
       o.min_points_per_side = value.get<int>();
     } else if (key == "sample") {
-      if (!value.is_object())
-        return option_error(key, "must be a sample document (a JSON object)");
-      auto sample = chemistry::parse_sample_json(value.dump());
+      auto sample = fit_support::sample_from_option(value);
       if (!sample)
         return option_error(key, sample.error().message);
       o.sample = std::move(*sample);

@@ -102,9 +102,7 @@ veq::Result<ModelFitOptions> model_fit_options_from_json(const nlohmann::json& j
         return option_error(key, "must be an integer");
       o.max_evaluations = value.get<int>();
     } else if (key == "sample") {
-      if (!value.is_object())
-        return option_error(key, "must be a sample document (a JSON object)");
-      auto sample = chemistry::parse_sample_json(value.dump());
+      auto sample = fit_support::sample_from_option(value);
       if (!sample)
         return option_error(key, sample.error().message);
       o.sample = std::move(*sample);
