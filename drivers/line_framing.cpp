@@ -2,21 +2,9 @@
 
 #include <cstdio>
 
+#include "common/hex.hpp"
+
 namespace veq::drivers {
-
-namespace {
-
-int hex_digit(char c) {
-  if (c >= '0' && c <= '9')
-    return c - '0';
-  if (c >= 'a' && c <= 'f')
-    return c - 'a' + 10;
-  if (c >= 'A' && c <= 'F')
-    return c - 'A' + 10;
-  return -1;
-}
-
-}  // namespace
 
 Result<std::string> parse_line_end(std::string_view text) {
   auto fail = [&](const std::string& why) {

@@ -7,6 +7,7 @@
 #include <set>
 #include <sstream>
 
+#include "common/hex.hpp"
 #include "drivers/line_framing.hpp"
 
 namespace veq::drivers::profile {
@@ -19,16 +20,6 @@ bool is_name_char(char c) {
 
 bool is_name(std::string_view s) {
   return !s.empty() && std::all_of(s.begin(), s.end(), is_name_char);
-}
-
-int hex_value(char c) {
-  if (c >= '0' && c <= '9')
-    return c - '0';
-  if (c >= 'a' && c <= 'f')
-    return c - 'a' + 10;
-  if (c >= 'A' && c <= 'F')
-    return c - 'A' + 10;
-  return -1;
 }
 
 /// A number in veq's units, as a field value: fixed notation, no exponent,
@@ -106,9 +97,9 @@ Result<std::vector<Token>> tokenize(std::string_view line) {
           } else if (e == 't') {
             t.text += '\t';
             i += 2;
-          } else if (e == 'x' && i + 3 < line.size() && hex_value(line[i + 2]) >= 0 &&
-                     hex_value(line[i + 3]) >= 0) {
-            t.text += static_cast<char>(hex_value(line[i + 2]) * 16 + hex_value(line[i + 3]));
+          } else if (e == 'x' && i + 3 < line.size() && hex_digit(line[i + 2]) >= 0 &&
+                     hex_digit(line[i + 3]) >= 0) {
+            t.text += static_cast<char>(hex_digit(line[i + 2]) * 16 + hex_digit(line[i + 3]));
             i += 4;
           } else {
             return make_error(ErrorKind::invalid_input,

@@ -14,6 +14,8 @@
 #include <fstream>
 #include <sstream>
 
+#include "common/hex.hpp"
+
 namespace veq::controller::audit {
 
 namespace {
@@ -36,17 +38,8 @@ std::optional<std::vector<std::uint8_t>> from_hex(std::string_view hex) {
   if (hex.size() % 2 != 0)
     return std::nullopt;
   std::vector<std::uint8_t> out(hex.size() / 2);
-  auto digit = [](char c) -> int {
-    if (c >= '0' && c <= '9')
-      return c - '0';
-    if (c >= 'a' && c <= 'f')
-      return c - 'a' + 10;
-    if (c >= 'A' && c <= 'F')
-      return c - 'A' + 10;
-    return -1;
-  };
   for (std::size_t i = 0; i < out.size(); ++i) {
-    const int hi = digit(hex[2 * i]), lo = digit(hex[2 * i + 1]);
+    const int hi = hex_digit(hex[2 * i]), lo = hex_digit(hex[2 * i + 1]);
     if (hi < 0 || lo < 0)
       return std::nullopt;
     out[i] = static_cast<std::uint8_t>(16 * hi + lo);
