@@ -2,22 +2,13 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
 #include <string>
+
+#include "controller/messages.hpp"
 
 namespace veq::controller {
 
 namespace {
-
-veq::Error invalid(const std::string& what) {
-  return veq::make_error(veq::ErrorKind::invalid_input, what);
-}
-
-std::string number(double x) {
-  char text[40];
-  std::snprintf(text, sizeof text, "%.6g", x);
-  return text;
-}
 
 // Sample standard deviation (n - 1).
 double sample_sd(const std::vector<double>& x, double mean) {
@@ -31,8 +22,8 @@ double sample_sd(const std::vector<double>& x, double mean) {
 
 veq::Result<double> water_density_g_per_ml(double temperature_c) {
   if (!std::isfinite(temperature_c) || temperature_c < 0.0 || temperature_c > 40.0) {
-    return invalid("water temperature " + number(temperature_c) +
-                   " °C is outside the water density table (0 to 40 °C)");
+    return invalid_input("water temperature " + message_number(temperature_c) +
+                         " °C is outside the water density table (0 to 40 °C)");
   }
   // Tanaka et al., Metrologia 38 (2001) 301, eq. 1, kg/m3.
   constexpr double a1 = -3.983035, a2 = 301.797, a3 = 522528.9, a4 = 69.34881, a5 = 999.974950;
@@ -54,9 +45,11 @@ veq::Result<double> mass_to_volume_factor_ml_per_g(double water_temperature_c, d
   if (!water)
     return water.error();
   if (!std::isfinite(air_density) || air_density < 0.0 || air_density > 0.01)
-    return invalid("air density " + number(air_density) + " g/mL is not a density of air");
+    return invalid_input("air density " + message_number(air_density) +
+                         " g/mL is not a density of air");
   if (!std::isfinite(weight_density) || weight_density <= air_density)
-    return invalid("reference weight density " + number(weight_density) + " g/mL is not usable");
+    return invalid_input("reference weight density " + message_number(weight_density) +
+                         " g/mL is not usable");
   return (1.0 / (*water - air_density)) * (1.0 - air_density / weight_density);
 }
 
@@ -87,9 +80,10 @@ veq::Result<BuretteErrorLimits> limits_for_burette(const BuretteLimitTable& tabl
   }
   std::string sizes;
   for (const BuretteErrorLimits& row : table.rows)
-    sizes += (sizes.empty() ? "" : ", ") + number(row.nominal_volume_ml);
-  return invalid("nominal_volume_ml: " + table.standard + " gives no limits for a " +
-                 number(nominal_volume_ml) + " mL burette (sizes in the table: " + sizes + " mL)");
+    sizes += (sizes.empty() ? "" : ", ") + message_number(row.nominal_volume_ml);
+  return invalid_input("nominal_volume_ml: " + table.standard + " gives no limits for a " +
+                       message_number(nominal_volume_ml) +
+                       " mL burette (sizes in the table: " + sizes + " mL)");
 }
 
 veq::Result<BuretteCheckResult> check_burette(const BuretteCheckInput& input,
@@ -99,12 +93,12 @@ veq::Result<BuretteCheckResult> check_burette(const BuretteCheckInput& input,
     return limits.error();
   if (!std::isfinite(input.test_volume_ml) || input.test_volume_ml <= 0.0 ||
       input.test_volume_ml > input.nominal_volume_ml) {
-    return invalid("test_volume_ml: " + number(input.test_volume_ml) +
-                   " mL must be above 0 and at most the nominal volume " +
-                   number(input.nominal_volume_ml) + " mL");
+    return invalid_input("test_volume_ml: " + message_number(input.test_volume_ml) +
+                         " mL must be above 0 and at most the nominal volume " +
+                         message_number(input.nominal_volume_ml) + " mL");
   }
   if (input.water_masses_g.size() < 2) {
-    return invalid(
+    return invalid_input(
         "water_masses_g: a burette check needs at least 2 deliveries (the standard "
         "asks for 10), got " +
         std::to_string(input.water_masses_g.size()));
@@ -112,19 +106,19 @@ veq::Result<BuretteCheckResult> check_burette(const BuretteCheckInput& input,
   for (std::size_t i = 0; i < input.water_masses_g.size(); ++i) {
     const double m = input.water_masses_g[i];
     if (!std::isfinite(m) || m <= 0.0) {
-      return invalid("water_masses_g[" + std::to_string(i + 1) + "]: " + number(m) +
-                     " g is not a positive mass");
+      return invalid_input("water_masses_g[" + std::to_string(i + 1) + "]: " + message_number(m) +
+                           " g is not a positive mass");
     }
   }
   if (!std::isfinite(input.air_pressure_hpa) || input.air_pressure_hpa < 500.0 ||
       input.air_pressure_hpa > 1100.0) {
-    return invalid("air_pressure_hpa: " + number(input.air_pressure_hpa) +
-                   " hPa is outside 500-1100 hPa");
+    return invalid_input("air_pressure_hpa: " + message_number(input.air_pressure_hpa) +
+                         " hPa is outside 500-1100 hPa");
   }
   if (!std::isfinite(input.air_humidity_percent) || input.air_humidity_percent < 0.0 ||
       input.air_humidity_percent > 100.0) {
-    return invalid("air_humidity_percent: " + number(input.air_humidity_percent) +
-                   " % is outside 0-100 %");
+    return invalid_input("air_humidity_percent: " + message_number(input.air_humidity_percent) +
+                         " % is outside 0-100 %");
   }
   const double air = air_density_g_per_ml(input.water_temperature_c, input.air_pressure_hpa,
                                           input.air_humidity_percent);
@@ -164,22 +158,23 @@ double nernst_slope_mv_per_decade(double temperature_c, int charge) {
 veq::Result<CalibrationResult> calibrate_electrode(
     const std::vector<CalibrationStandard>& standards, const CalibrationOptions& o) {
   if (standards.size() < 2 || standards.size() > 5) {
-    return invalid("an electrode calibration takes 2 to 5 standards, got " +
-                   std::to_string(standards.size()));
+    return invalid_input("an electrode calibration takes 2 to 5 standards, got " +
+                         std::to_string(standards.size()));
   }
   if (o.charge == 0)
-    return invalid("charge: the ion's charge must not be 0");
+    return invalid_input("charge: the ion's charge must not be 0");
   if (!std::isfinite(o.temperature_c) || o.temperature_c < 0.0 || o.temperature_c > 100.0)
-    return invalid("temperature_c: " + number(o.temperature_c) + " °C is outside 0-100 °C");
+    return invalid_input("temperature_c: " + message_number(o.temperature_c) +
+                         " °C is outside 0-100 °C");
   std::vector<double> x, y;
   for (std::size_t i = 0; i < standards.size(); ++i) {
     const CalibrationStandard& s = standards[i];
     if (!std::isfinite(s.conc_mol_per_l) || s.conc_mol_per_l <= 0.0) {
-      return invalid("standard " + std::to_string(i + 1) + ": concentration " +
-                     number(s.conc_mol_per_l) + " mol/L is not positive");
+      return invalid_input("standard " + std::to_string(i + 1) + ": concentration " +
+                           message_number(s.conc_mol_per_l) + " mol/L is not positive");
     }
     if (!std::isfinite(s.potential_mv)) {
-      return invalid("standard " + std::to_string(i + 1) + ": the potential is not a number");
+      return invalid_input("standard " + std::to_string(i + 1) + ": the potential is not a number");
     }
     x.push_back(std::log10(s.conc_mol_per_l));
     y.push_back(s.potential_mv);
@@ -196,7 +191,7 @@ veq::Result<CalibrationResult> calibrate_electrode(
     sxy += (x[i] - mx) * (y[i] - my);
   }
   if (!(sxx > 1e-6)) {
-    return invalid(
+    return invalid_input(
         "the standards span no range of concentration: at least two different "
         "concentrations are needed");
   }
@@ -220,14 +215,15 @@ veq::Result<CalibrationResult> calibrate_electrode(
   r.slope_at_25c_mv_per_decade = r.slope_mv_per_decade * (298.15 / (o.temperature_c + 273.15));
   if (r.slope_percent_of_nernst < o.min_slope_percent ||
       r.slope_percent_of_nernst > o.max_slope_percent) {
-    r.reason = "slope " + number(r.slope_mv_per_decade) + " mV/decade is " +
-               number(r.slope_percent_of_nernst) + " % of the Nernst slope " +
-               number(r.nernst_slope_mv_per_decade) + " mV/decade at " + number(o.temperature_c) +
-               " °C, outside " + number(o.min_slope_percent) + "-" + number(o.max_slope_percent) +
+    r.reason = "slope " + message_number(r.slope_mv_per_decade) + " mV/decade is " +
+               message_number(r.slope_percent_of_nernst) + " % of the Nernst slope " +
+               message_number(r.nernst_slope_mv_per_decade) + " mV/decade at " +
+               message_number(o.temperature_c) + " °C, outside " +
+               message_number(o.min_slope_percent) + "-" + message_number(o.max_slope_percent) +
                " %";
   } else if (r.residual_sd_mv > o.max_residual_mv) {
-    r.reason = "the standards scatter about the line by " + number(r.residual_sd_mv) +
-               " mV, more than " + number(o.max_residual_mv) + " mV";
+    r.reason = "the standards scatter about the line by " + message_number(r.residual_sd_mv) +
+               " mV, more than " + message_number(o.max_residual_mv) + " mV";
   }
   r.accepted = r.reason.empty();
   return r;
@@ -236,7 +232,8 @@ veq::Result<CalibrationResult> calibrate_electrode(
 veq::Result<TiterValue> titer_from_standard(const TiterDetermination& d) {
   auto positive = [](double v, const char* field) -> veq::Result<void> {
     if (!std::isfinite(v) || v <= 0.0)
-      return invalid(std::string(field) + ": " + number(v) + " must be a positive number");
+      return invalid_input(std::string(field) + ": " + message_number(v) +
+                           " must be a positive number");
     return {};
   };
   for (auto check : {positive(d.standard_mass_g, "standard_mass_g"),
@@ -249,12 +246,13 @@ veq::Result<TiterValue> titer_from_standard(const TiterDetermination& d) {
   }
   if (!std::isfinite(d.standard_purity_percent) || d.standard_purity_percent <= 0.0 ||
       d.standard_purity_percent > 100.0) {
-    return invalid("standard_purity_percent: " + number(d.standard_purity_percent) +
-                   " % must lie above 0 and at most 100");
+    return invalid_input("standard_purity_percent: " + message_number(d.standard_purity_percent) +
+                         " % must lie above 0 and at most 100");
   }
   if (!std::isfinite(d.blank_ml) || d.blank_ml < 0.0 || d.blank_ml >= d.endpoint_ml) {
-    return invalid("blank_ml: " + number(d.blank_ml) + " mL must lie from 0 up to the endpoint " +
-                   number(d.endpoint_ml) + " mL");
+    return invalid_input("blank_ml: " + message_number(d.blank_ml) +
+                         " mL must lie from 0 up to the endpoint " + message_number(d.endpoint_ml) +
+                         " mL");
   }
   const double standard_mol =
       d.standard_mass_g * (d.standard_purity_percent / 100.0) / d.standard_molar_mass_g_per_mol;

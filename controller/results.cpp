@@ -1,37 +1,28 @@
 #include "controller/results.hpp"
 
 #include <cmath>
-#include <cstdio>
 #include <string>
+
+#include "controller/messages.hpp"
 
 namespace veq::controller {
 
 namespace {
 
-veq::Error invalid(const std::string& what) {
-  return veq::make_error(veq::ErrorKind::invalid_input, what);
-}
-
-std::string number(double x) {
-  char text[40];
-  std::snprintf(text, sizeof text, "%.6g", x);
-  return text;
-}
-
 veq::Result<void> check_titrant(const TitrantVolume& t, const char* role) {
   const std::string who = std::string(role) + " titrant ";
   if (!std::isfinite(t.nominal_conc_mol_per_l) || t.nominal_conc_mol_per_l <= 0.0)
-    return invalid(who + "nominal_conc_mol_per_l: " + number(t.nominal_conc_mol_per_l) +
-                   " must be positive");
+    return invalid_input(who + "nominal_conc_mol_per_l: " +
+                         message_number(t.nominal_conc_mol_per_l) + " must be positive");
   if (!std::isfinite(t.titer) || t.titer <= 0.0)
-    return invalid(who + "titer: " + number(t.titer) + " must be positive");
+    return invalid_input(who + "titer: " + message_number(t.titer) + " must be positive");
   if (!std::isfinite(t.volume_ml) || t.volume_ml < 0.0)
-    return invalid(who + "volume_ml: " + number(t.volume_ml) + " must be 0 or more");
+    return invalid_input(who + "volume_ml: " + message_number(t.volume_ml) + " must be 0 or more");
   if (!std::isfinite(t.blank_ml) || t.blank_ml < 0.0)
-    return invalid(who + "blank_ml: " + number(t.blank_ml) + " must be 0 or more");
+    return invalid_input(who + "blank_ml: " + message_number(t.blank_ml) + " must be 0 or more");
   if (!std::isfinite(t.analyte_per_titrant) || t.analyte_per_titrant <= 0.0)
-    return invalid(who + "analyte_per_titrant: " + number(t.analyte_per_titrant) +
-                   " must be positive");
+    return invalid_input(who + "analyte_per_titrant: " + message_number(t.analyte_per_titrant) +
+                         " must be positive");
   return {};
 }
 
@@ -46,8 +37,8 @@ veq::Result<double> analyte_amount_mol(const TitrantVolume& t) {
   if (auto ok = check_titrant(t, "the"); !ok)
     return ok.error();
   if (t.blank_ml > t.volume_ml) {
-    return invalid("blank_ml: the blank " + number(t.blank_ml) + " mL exceeds the endpoint " +
-                   number(t.volume_ml) + " mL");
+    return invalid_input("blank_ml: the blank " + message_number(t.blank_ml) +
+                         " mL exceeds the endpoint " + message_number(t.volume_ml) + " mL");
   }
   return amount(t);
 }
@@ -61,9 +52,9 @@ veq::Result<double> back_titration_amount_mol(const TitrantVolume& excess,
   const double added = amount(excess);
   const double left = amount(back);
   if (left > added) {
-    return invalid("the back-titration used " + number(left * 1000.0) +
-                   " mmol, more than the excess of " + number(added * 1000.0) +
-                   " mmol added: the excess was too small or a volume is wrong");
+    return invalid_input("the back-titration used " + message_number(left * 1000.0) +
+                         " mmol, more than the excess of " + message_number(added * 1000.0) +
+                         " mmol added: the excess was too small or a volume is wrong");
   }
   return added - left;
 }
@@ -77,8 +68,9 @@ veq::Result<TwoMetalAmounts> amounts_from_total_and_first(const TitrantVolume& t
   if (!f)
     return f.error();
   if (*f > *t * (1.0 + 1e-12)) {
-    return invalid("the first metal (" + number(*f * 1000.0) +
-                   " mmol) exceeds the total of both (" + number(*t * 1000.0) + " mmol)");
+    return invalid_input("the first metal (" + message_number(*f * 1000.0) +
+                         " mmol) exceeds the total of both (" + message_number(*t * 1000.0) +
+                         " mmol)");
   }
   return TwoMetalAmounts{*f, std::max(0.0, *t - *f)};
 }
@@ -111,27 +103,28 @@ std::optional<ResultUnit> result_unit_from_name(std::string_view name) {
 veq::Result<double> concentration(double amount_mol, const SampleSize& s, ResultUnit unit,
                                   double molar_mass) {
   if (!std::isfinite(amount_mol) || amount_mol < 0.0)
-    return invalid("amount " + number(amount_mol) + " mol is not a usable amount");
+    return invalid_input("amount " + message_number(amount_mol) + " mol is not a usable amount");
   if (!std::isfinite(s.dilution_factor) || s.dilution_factor < 1.0)
-    return invalid("dilution_factor: " + number(s.dilution_factor) + " must be 1 or more");
+    return invalid_input("dilution_factor: " + message_number(s.dilution_factor) +
+                         " must be 1 or more");
   const bool by_volume = s.aliquot_ml > 0.0;
   const bool by_mass = s.mass_g > 0.0;
   if (by_volume == by_mass) {
-    return invalid(by_volume ? "sample size: give either aliquot_ml or mass_g, not both"
-                             : "sample size: aliquot_ml or mass_g must be positive");
+    return invalid_input(by_volume ? "sample size: give either aliquot_ml or mass_g, not both"
+                                   : "sample size: aliquot_ml or mass_g must be positive");
   }
   if (!std::isfinite(s.aliquot_ml) || !std::isfinite(s.mass_g))
-    return invalid("sample size is not a number");
+    return invalid_input("sample size is not a number");
   const bool mass_unit = unit == ResultUnit::mass_percent || unit == ResultUnit::mg_per_kg;
   const bool needs_molar_mass = unit == ResultUnit::mg_per_l || mass_unit;
   if (needs_molar_mass && !(std::isfinite(molar_mass) && molar_mass > 0.0)) {
-    return invalid(std::string("a result in ") + result_unit_name(unit) +
-                   " needs the analyte's molar mass");
+    return invalid_input(std::string("a result in ") + result_unit_name(unit) +
+                         " needs the analyte's molar mass");
   }
   if (by_volume == mass_unit && !(std::isfinite(s.density_g_per_ml) && s.density_g_per_ml > 0.0)) {
-    return invalid(std::string("a ") +
-                   (by_volume ? "sample measured by volume" : "weighed sample") + " reported in " +
-                   result_unit_name(unit) + " needs the sample's density_g_per_ml");
+    return invalid_input(
+        std::string("a ") + (by_volume ? "sample measured by volume" : "weighed sample") +
+        " reported in " + result_unit_name(unit) + " needs the sample's density_g_per_ml");
   }
   // Amount in the original sample per litre or per gram of it.
   const double original_amount = amount_mol * s.dilution_factor;
@@ -150,7 +143,7 @@ veq::Result<double> concentration(double amount_mol, const SampleSize& s, Result
     case ResultUnit::mg_per_kg:
       return 1.0e6 * original_amount * molar_mass / mass_g;
   }
-  return invalid("unknown unit");
+  return invalid_input("unknown unit");
 }
 
 WaterHardness water_hardness(double mmol_per_l) {
@@ -173,7 +166,7 @@ veq::Result<GrubbsCritical> grubbs_critical(std::size_t n) {
       {2.462, 2.699}, {2.507, 2.755}, {2.549, 2.806}, {2.585, 2.852}, {2.620, 2.894},
       {2.651, 2.932}, {2.681, 2.968}, {2.709, 3.001}};
   if (n < 3 || n > 20) {
-    return invalid("the Grubbs test's table covers 3 to 20 values, not " + std::to_string(n));
+    return invalid_input("the Grubbs test's table covers 3 to 20 values, not " + std::to_string(n));
   }
   return kTable[n - 3];
 }
@@ -181,13 +174,13 @@ veq::Result<GrubbsCritical> grubbs_critical(std::size_t n) {
 veq::Result<ReplicateStatistics> replicate_statistics(const std::vector<double>& values,
                                                       std::optional<double> repeatability_sd) {
   if (values.empty())
-    return invalid("replicate statistics need at least one value");
+    return invalid_input("replicate statistics need at least one value");
   for (std::size_t i = 0; i < values.size(); ++i) {
     if (!std::isfinite(values[i]))
-      return invalid("replicate " + std::to_string(i + 1) + " is not a number");
+      return invalid_input("replicate " + std::to_string(i + 1) + " is not a number");
   }
   if (repeatability_sd && !(std::isfinite(*repeatability_sd) && *repeatability_sd > 0.0))
-    return invalid("repeatability_sd: must be a positive number");
+    return invalid_input("repeatability_sd: must be a positive number");
   ReplicateStatistics s;
   s.count = values.size();
   const double n = static_cast<double>(values.size());
@@ -232,16 +225,17 @@ veq::Result<UncertaintyBudget> product_quotient_budget(double result,
                                                        std::vector<UncertaintyComponent> components,
                                                        double coverage_factor) {
   if (!std::isfinite(result))
-    return invalid("the result is not a number");
+    return invalid_input("the result is not a number");
   if (!std::isfinite(coverage_factor) || coverage_factor <= 0.0)
-    return invalid("coverage_factor: must be positive");
+    return invalid_input("coverage_factor: must be positive");
   double variance = 0.0;
   for (UncertaintyComponent& c : components) {
     if (!std::isfinite(c.value) || c.value == 0.0)
-      return invalid("uncertainty component '" + c.name + "': its value must be a non-zero number");
+      return invalid_input("uncertainty component '" + c.name +
+                           "': its value must be a non-zero number");
     if (!std::isfinite(c.standard_uncertainty) || c.standard_uncertainty < 0.0) {
-      return invalid("uncertainty component '" + c.name +
-                     "': its standard uncertainty must be 0 or more");
+      return invalid_input("uncertainty component '" + c.name +
+                           "': its standard uncertainty must be 0 or more");
     }
     c.relative_uncertainty = c.standard_uncertainty / std::abs(c.value);
     variance += c.relative_uncertainty * c.relative_uncertainty;
