@@ -4,11 +4,11 @@
 #include "controller/store/audit_trail.hpp"
 
 #include <gtest/gtest.h>
-#include <sqlite3.h>
 
 #include <filesystem>
 
 #include "controller/store/sqlite_store.hpp"
+#include "tests/controller/raw_sql.hpp"
 
 namespace veq::store {
 namespace {
@@ -30,17 +30,7 @@ struct Files {
   std::string key() const { return (dir / "lab.sqlite.audit-key").string(); }
 };
 
-int exec_raw(const std::string& path, const char* sql, std::string* error = nullptr) {
-  sqlite3* db = nullptr;
-  sqlite3_open(path.c_str(), &db);
-  char* message = nullptr;
-  const int rc = sqlite3_exec(db, sql, nullptr, nullptr, &message);
-  if (error && message)
-    *error = message;
-  sqlite3_free(message);
-  sqlite3_close(db);
-  return rc;
-}
+using veq::store::testing::exec_raw;
 
 // A run with two evaluations, stored the ordinary way.
 std::int64_t stored_run(const std::string& path) {

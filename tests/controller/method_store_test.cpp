@@ -14,6 +14,7 @@
 #include "controller/method/stored_methods.hpp"
 #include "controller/method/titer.hpp"
 #include "controller/store/sqlite_store.hpp"
+#include "tests/controller/raw_sql.hpp"
 
 namespace veq::store {
 namespace {
@@ -35,17 +36,7 @@ struct TempDir {
 };
 
 /// Runs SQL on a raw connection (no veq code), returns the SQLite code.
-int exec_raw(const std::string& path, const std::string& sql, std::string* error = nullptr) {
-  sqlite3* db = nullptr;
-  sqlite3_open(path.c_str(), &db);
-  char* message = nullptr;
-  const int rc = sqlite3_exec(db, sql.c_str(), nullptr, nullptr, &message);
-  if (error && message)
-    *error = message;
-  sqlite3_free(message);
-  sqlite3_close(db);
-  return rc;
-}
+using veq::store::testing::exec_raw;
 
 method::Method hardness() {
   return method::read_method_file(std::string(VEQ_SOURCE_DIR) +

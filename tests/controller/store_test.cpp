@@ -7,6 +7,7 @@
 #include <fstream>
 
 #include "controller/store/sqlite_store.hpp"
+#include "tests/controller/raw_sql.hpp"
 
 namespace veq::store {
 namespace {
@@ -37,17 +38,7 @@ NewRun sample_run() {
   return r;
 }
 
-int exec_raw(const std::string& path, const char* sql, std::string* error = nullptr) {
-  sqlite3* db = nullptr;
-  sqlite3_open(path.c_str(), &db);
-  char* message = nullptr;
-  const int rc = sqlite3_exec(db, sql, nullptr, nullptr, &message);
-  if (error && message)
-    *error = message;
-  sqlite3_free(message);
-  sqlite3_close(db);
-  return rc;
-}
+using veq::store::testing::exec_raw;
 
 TEST(SqliteStore, CreatesSchemaAndRoundTripsARun) {
   TempDir dir;
