@@ -21,6 +21,7 @@
 #include "controller/titration.hpp"
 #include "simulator/bench.hpp"
 #include "simulator/builtin_scenarios.hpp"
+#include "tests/controller/simulated_trial.hpp"
 
 namespace veq::controller {
 namespace {
@@ -61,37 +62,18 @@ const std::vector<Fault>& faults() {
   return all;
 }
 
-simulator::Scenario demo_scenario() {
-  return simulator::parse_scenario(simulator::builtin_scenario("demo_calcium"), "demo").value();
-}
+using testing::demo_scenario;
 
-struct CampaignRun {
-  drivers::VirtualClock clock;
-  std::unique_ptr<simulator::SimulatedBench> bench;
-  std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link;
-  std::unique_ptr<drivers::BuretteClient> burette;
-  std::unique_ptr<drivers::PotentialSensorClient> sensor;
-  std::unique_ptr<store::SqliteStore> store;
+// A titration of the demo sample with fixed increments up to 20 mL, run at
+// once; the truth is the simulator's, read before the run.
+struct CampaignRun : testing::Trial {
   RunOutcome outcome;
   double truth_ml = 0.0;
 
-  explicit CampaignRun(const simulator::Scenario& scenario) {
-    bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
-    burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
-    sensor_link =
-        std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "electrode");
-    burette = std::make_unique<drivers::BuretteClient>(*burette_link);
-    sensor = std::make_unique<drivers::PotentialSensorClient>(*sensor_link);
-    store = std::move(store::SqliteStore::open(":memory:")).value();
-    truth_ml = bench->true_equivalence_reading_ml();
-    SampleDescription sample;
+  explicit CampaignRun(const simulator::Scenario& s) : Trial(s) {
     sample.sample_id = "campaign";
-    sample.sample_volume_ml = scenario.sample.volume_ml;
-    sample.titrant_conc_mol_per_l = scenario.titrant.label_conc_mol_per_l;
-    TitrationMethod method;
-    method.max_volume_ml = 20.0;
-    Instruments instruments{*burette, *sensor, clock};
-    outcome = run_titration(instruments, *store, sample, method, nullptr, nullptr);
+    truth_ml = bench->true_equivalence_reading_ml();
+    outcome = run();
   }
 };
 
