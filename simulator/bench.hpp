@@ -4,6 +4,7 @@
 // virtual time.
 #pragma once
 
+#include <array>
 #include <memory>
 #include <string>
 #include <string_view>
@@ -52,6 +53,26 @@ struct BenchTruths {
   /// acid or base from the doser when pH follows the proton balance), or the
   /// 1:1 sample's fixed pH.
   double vessel_ph = 0.0;
+  /// Rack position of the vessel the sensors read now: where the sample
+  /// changer's head last came down; 0 before that (the scenario's own
+  /// vessel). Everything above counts from that moment.
+  int position = 0;
+};
+
+/// What a rack position's vessel truly holds (hidden truths).
+struct PositionTruths {
+  int position = 0;
+  bool in_rack = false;  ///< false: not in the rack, the scenario's own sample
+  std::string label;
+  bool standard = false;    ///< a primary standard (metal = mass * purity / M)
+  bool on_balance = false;  ///< water on the balance (a burette check)
+  /// Each metal the vessel holds (name, mol); a standard's metal; none for
+  /// water.
+  std::vector<std::pair<std::string, double>> metals_mol;
+  double blank_metal_mol = 0.0;  ///< the vessel's own blank (reagents not counted), mol
+  /// Burette reading at the stoichiometric equivalence of the metals above
+  /// (their sum), with the burette's systematic error and the true titrant, mL.
+  double equivalence_reading_ml = 0.0;
 };
 
 class SimulatedBench {
@@ -93,25 +114,48 @@ class SimulatedBench {
   /// this burette would show it, with its systematic error and the titrant's
   /// true concentration. Without blank or premixed titrant: the sample's.
   double true_equivalence_reading_ml() const;
-  /// Every hidden truth at the present time.
+  /// Every hidden truth at the present time, of the vessel the sensors
+  /// read now (see BenchTruths::position).
   BenchTruths truths() const;
+  /// What a rack position's vessel holds (any position: one not in the rack
+  /// holds the scenario's own sample).
+  PositionTruths position_truths(int position) const;
+  /// Rack position of the vessel the sensors read now (0: none lowered yet).
+  int position() const;
   /// What has entered the vessel besides the sample and the titrant now.
   VesselContent additions() const;
+  /// Titrant truly in the vessel now, mL (delivered since it was lowered into).
+  double titrant_in_vessel_ml() const;
   const Scenario& scenario() const { return scenario_; }
 
  private:
+  /// A new vessel when the changer's head has come down since last asked.
+  void follow_changer() const;
+  void take_vessel(int position) const;
+  /// Burette liquid that has gone onto the balance, mL.
+  double on_balance_ml() const;
+
   Scenario scenario_;
+  // The vessel the sensors read: changed by follow_changer(), which runs
+  // before any device answers and from the const truths() as well.
+  mutable Scenario vessel_;
+  mutable int position_ = 0;
+  mutable int lowerings_seen_ = 0;
+  mutable bool on_balance_ = false;
+  mutable double burette_zero_ml_ = 0.0;
+  mutable std::array<double, 6> doser_zero_ml_{};
+  mutable double balance_kept_ml_ = 0.0;  ///< delivered onto earlier on_balance vessels
   std::mutex vessel_lock_;
   mutable VesselModel truth_vessel_;  // for the indicator's share
   VirtualBurette burette_;
-  VirtualElectrode electrode_;
+  mutable VirtualElectrode electrode_;
   drivers::MemoryTransport burette_line_;
   drivers::MemoryTransport electrode_line_;
   VirtualAuxiliaryDoser doser_;
-  VirtualPhotometer photometer_;
+  mutable VirtualPhotometer photometer_;
   VirtualBalance balance_;
   VirtualStirrer stirrer_;
-  VirtualSampleChanger changer_;
+  mutable VirtualSampleChanger changer_;
   drivers::MemoryTransport doser_line_;
   drivers::MemoryTransport photometer_line_;
   drivers::MemoryTransport balance_line_;

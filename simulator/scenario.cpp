@@ -151,6 +151,141 @@ struct Reader {
   }
 };
 
+/// A chemistry section (the scenario's or a rack position's) into chem, and
+/// what the 1:1 fields would hold (blank metal's content, sample volume)
+/// into sample, for the truths.
+void read_chemistry(Reader& r, const json& c, const json& doc, const std::string& where,
+                    ChemistrySpec& chem, SampleSpec& sample) {
+  if (!c.is_object()) {
+    r.fail(where, "must be a chemistry sample object (docs/chemistry.md)");
+    return;
+  }
+  chem.present = true;
+  json copy = c;
+  copy.erase("blank_metal");
+  copy.erase("premixed_titrant_mol");
+  // The titrant is the scenario's (its true concentration replaces this
+  // one when the vessel is built); the section may leave it out.
+  if (!copy.contains("titrant")) {
+    std::string name = "EDTA";
+    if (doc.contains("titrant") && doc.at("titrant").is_object() &&
+        doc.at("titrant").contains("name") && doc.at("titrant").at("name").is_string())
+      name = doc.at("titrant").at("name").get<std::string>();
+    copy["titrant"] = json{{"name", name}, {"conc_mol_per_l", 1.0}};
+  }
+  r.number(c, where.c_str(), "premixed_titrant_mol", chem.premixed_titrant_mol, false, 0.0, 1.0);
+  chem.sample_json = copy.dump();
+  r.text(c, where.c_str(), "blank_metal", chem.blank_metal);
+  if (c.contains("sample_volume_ml") && c.at("sample_volume_ml").is_number())
+    sample.volume_ml = c.at("sample_volume_ml").get<double>();
+  if (c.contains("metals") && c.at("metals").is_array()) {
+    for (const json& m : c.at("metals")) {
+      if (!m.is_object() || !m.contains("name") || !m.contains("conc_mol_per_l") ||
+          !m.at("name").is_string() || !m.at("conc_mol_per_l").is_number())
+        continue;
+      const std::string name = m.at("name").get<std::string>();
+      if (chem.blank_metal.empty())
+        chem.blank_metal = name;
+      if (name == chem.blank_metal) {
+        sample.metal = name;
+        sample.metal_conc_mol_per_l = m.at("conc_mol_per_l").get<double>();
+      }
+    }
+  }
+}
+
+/// One vessel of the rack; the sample, changer and chemistry sections are read.
+void read_rack_position(Reader& r, const json& j, const json& doc, std::size_t index, Scenario& s) {
+  const std::string where = "rack[" + std::to_string(index) + "]";
+  const char* w = where.c_str();
+  if (!j.is_object()) {
+    r.fail(where, "must be { \"position\": N, \"label\": ..., ... }");
+    return;
+  }
+  RackPosition p;
+  p.sample = s.sample;
+  p.chemistry = s.chemistry;
+  const int positions = s.sample_changer.positions;
+  if (!j.contains("position")) {
+    r.fail(where + ".position", "missing (1 to " + std::to_string(positions) + ")");
+    return;
+  }
+  const json& pos = j.at("position");
+  if (!pos.is_number_integer() || pos.get<long long>() < 1 || pos.get<long long>() > positions) {
+    r.fail(where + ".position", "must be a whole number from 1 to " + std::to_string(positions) +
+                                    " (sample_changer.positions), not " + pos.dump());
+    return;
+  }
+  p.position = pos.get<int>();
+  for (const RackPosition& other : s.rack) {
+    if (other.position == p.position) {
+      r.fail(where + ".position",
+             "position " + std::to_string(p.position) + " is already in the rack");
+      return;
+    }
+  }
+  r.text(j, w, "label", p.label);
+  r.boolean(j, w, "on_balance", p.on_balance);
+  const bool own_chemistry = j.contains("chemistry");
+  if (own_chemistry) {
+    p.chemistry = ChemistrySpec{};
+    read_chemistry(r, j.at("chemistry"), doc, where + ".chemistry", p.chemistry, p.sample);
+  }
+  static const char* const kOneToOne[] = {
+      "metal_conc_mol_per_l", "metal_mol", "mass_g", "purity_percent",
+      "molar_mass_g_per_mol", "metal",     "charge", "log10_formation_constant",
+      "alpha_metal"};
+  for (const char* key : kOneToOne) {
+    if (j.contains(key) && (p.chemistry.present || p.on_balance)) {
+      r.fail(where + "." + key,
+             p.on_balance ? "an on_balance vessel holds water only"
+             : own_chemistry
+                 ? "the position's chemistry section holds its metals"
+                 : "the scenario's chemistry section holds the metals; give the position its "
+                   "own chemistry section");
+      return;
+    }
+  }
+  if (j.contains("metal_conc_mol_per_l") && j.contains("metal_mol")) {
+    r.fail(where, "give metal_conc_mol_per_l or metal_mol, not both");
+    return;
+  }
+  r.text(j, w, "metal", p.sample.metal);
+  r.integer(j, w, "charge", p.sample.charge, 1, 4);
+  r.number(j, w, "volume_ml", p.sample.volume_ml, false, 0.1, 1000.0);
+  r.number(j, w, "metal_conc_mol_per_l", p.sample.metal_conc_mol_per_l, false, 1e-9, 2.0);
+  double metal_mol = 0.0;
+  if (r.number(j, w, "metal_mol", metal_mol, false, 1e-15, 1.0) && j.contains("metal_mol"))
+    p.sample.metal_conc_mol_per_l = metal_mol * 1000.0 / p.sample.volume_ml;
+  r.number(j, w, "ph", p.sample.ph, false, 0.0, 14.0);
+  r.number(j, w, "log10_formation_constant", p.sample.log10_formation_constant, false, 0.0, 40.0);
+  r.number(j, w, "alpha_metal", p.sample.alpha_metal, false, 1e-30, 1.0);
+  r.number(j, w, "reaction_time_s", p.sample.reaction_time_s, false, 0.0, 3600.0);
+  r.number(j, w, "blank_metal_mol", p.sample.blank_metal_mol, false, 0.0, 1.0);
+  r.number(j, w, "buffer_capacity_mol_per_ph", p.sample.buffer_capacity_mol_per_ph, false, 0.0,
+           100.0);
+  if (j.contains("mass_g")) {
+    p.standard.present = true;
+    r.number(j, w, "mass_g", p.standard.mass_g, true, 1e-9, 1000.0);
+    r.number(j, w, "purity_percent", p.standard.purity_percent, false, 1.0, 100.0);
+    r.number(j, w, "molar_mass_g_per_mol", p.standard.molar_mass_g_per_mol, false, 1.0, 10000.0);
+    if (j.contains("metal_conc_mol_per_l") || j.contains("metal_mol")) {
+      r.fail(where + ".mass_g",
+             "a standard's metal is its mass; leave out metal_conc_mol_per_l "
+             "and metal_mol");
+      return;
+    }
+  } else {
+    for (const char* key : {"purity_percent", "molar_mass_g_per_mol"}) {
+      if (j.contains(key)) {
+        r.fail(where + "." + key, "belongs to a standard (needs mass_g)");
+        return;
+      }
+    }
+  }
+  s.rack.push_back(std::move(p));
+}
+
 }  // namespace
 
 FaultKind fault_kind_from_name(std::string_view name, bool* ok) {
@@ -257,48 +392,8 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     }
   }
   const bool general = doc.contains("chemistry");
-  if (general) {
-    const json& c = doc.at("chemistry");
-    if (!c.is_object()) {
-      r.fail("chemistry", "must be a chemistry sample object (docs/chemistry.md)");
-    } else {
-      s.chemistry.present = true;
-      json copy = c;
-      copy.erase("blank_metal");
-      copy.erase("premixed_titrant_mol");
-      // The titrant is the scenario's (its true concentration replaces this
-      // one when the vessel is built); the section may leave it out.
-      if (!copy.contains("titrant")) {
-        std::string name = "EDTA";
-        if (doc.contains("titrant") && doc.at("titrant").is_object() &&
-            doc.at("titrant").contains("name") && doc.at("titrant").at("name").is_string())
-          name = doc.at("titrant").at("name").get<std::string>();
-        copy["titrant"] = json{{"name", name}, {"conc_mol_per_l", 1.0}};
-      }
-      r.number(c, "chemistry", "premixed_titrant_mol", s.chemistry.premixed_titrant_mol, false, 0.0,
-               1.0);
-      s.chemistry.sample_json = copy.dump();
-      r.text(c, "chemistry", "blank_metal", s.chemistry.blank_metal);
-      // What the 1:1 fields would hold, for the truths: the blank metal's
-      // content and the sample volume.
-      if (c.contains("sample_volume_ml") && c.at("sample_volume_ml").is_number())
-        s.sample.volume_ml = c.at("sample_volume_ml").get<double>();
-      if (c.contains("metals") && c.at("metals").is_array()) {
-        for (const json& m : c.at("metals")) {
-          if (!m.is_object() || !m.contains("name") || !m.contains("conc_mol_per_l") ||
-              !m.at("name").is_string() || !m.at("conc_mol_per_l").is_number())
-            continue;
-          const std::string name = m.at("name").get<std::string>();
-          if (s.chemistry.blank_metal.empty())
-            s.chemistry.blank_metal = name;
-          if (name == s.chemistry.blank_metal) {
-            s.sample.metal = name;
-            s.sample.metal_conc_mol_per_l = m.at("conc_mol_per_l").get<double>();
-          }
-        }
-      }
-    }
-  }
+  if (general)
+    read_chemistry(r, doc.at("chemistry"), doc, "chemistry", s.chemistry, s.sample);
   if (general && doc.contains("sample")) {
     if (const json* j = r.section(doc, "sample", false)) {
       r.number(*j, "sample", "blank_metal_mol", s.sample.blank_metal_mol, false, 0.0, 1.0);
@@ -524,8 +619,37 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
       }
     }
   }
+  if (doc.contains("rack")) {
+    const json& rack = doc.at("rack");
+    if (!rack.is_array()) {
+      r.fail("rack", "must be a list of { \"position\": N, ... }");
+    } else {
+      for (std::size_t i = 0; i < rack.size() && r.error.empty(); ++i)
+        read_rack_position(r, rack[i], doc, i, s);
+    }
+  }
   if (!r.error.empty())
     return make_error(ErrorKind::invalid_input, r.error);
+  for (std::size_t i = 0; i < s.rack.size(); ++i) {
+    if (!s.rack[i].chemistry.present)
+      continue;
+    // Each vessel's chemistry must build and solve now, as the scenario's own.
+    const std::string where = r.source + ": rack[" + std::to_string(i) + "]";
+    auto vessel = VesselModel::create(vessel_scenario(s, s.rack[i].position));
+    if (!vessel)
+      return make_error(ErrorKind::invalid_input, where + ": " + vessel.error().message);
+    if (vessel->metal_index(s.electrode.metal) < 0) {
+      return make_error(ErrorKind::invalid_input,
+                        where + ".chemistry: holds no '" + s.electrode.metal +
+                            "', the metal the electrode senses (electrode.metal)");
+    }
+    for (const Interferent& f : s.electrode.interferents) {
+      if (vessel->metal_index(f.metal) < 0) {
+        return make_error(ErrorKind::invalid_input, where + ".chemistry: holds no '" + f.metal +
+                                                        "', an interferent of the electrode");
+      }
+    }
+  }
   if (s.chemistry.present) {
     // The general chemistry must build and solve now, not when a device reads.
     auto vessel = VesselModel::create(s);
@@ -546,6 +670,31 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     }
   }
   return s;
+}
+
+const RackPosition* rack_position(const Scenario& scenario, int position) {
+  for (const RackPosition& p : scenario.rack) {
+    if (p.position == position)
+      return &p;
+  }
+  return nullptr;
+}
+
+Scenario vessel_scenario(const Scenario& scenario, int position) {
+  Scenario v = scenario;
+  const RackPosition* p = rack_position(scenario, position);
+  if (!p)
+    return v;
+  v.sample = p->sample;
+  v.chemistry = p->chemistry;
+  if (p->standard.present)
+    v.sample.metal_conc_mol_per_l = p->standard.metal_mol() * 1000.0 / v.sample.volume_ml;
+  if (p->on_balance) {
+    v.chemistry = ChemistrySpec{};
+    v.sample.metal_conc_mol_per_l = kWaterTraceMetalMolPerL;
+    v.sample.blank_metal_mol = 0.0;
+  }
+  return v;
 }
 
 Result<Scenario> load_scenario(const std::string& path) {

@@ -29,6 +29,12 @@ struct SampleSpec {
   /// metal: the blank), mol. It is titrated with the sample's metal. 0: a
   /// perfectly clean bench, which would let no blank determination fail.
   double blank_metal_mol = 0.0;
+  /// Buffer capacity of the vessel, mol of strong acid per pH unit: acid or
+  /// base dosed by the auxiliary doser moves the pH linearly,
+  /// pH = ph - net strong acid mol / capacity, clamped to 0..14 (a linear
+  /// approximation of a buffer, good for small moves near its pKa). 0: the
+  /// pH stays fixed whatever is added (an ideal buffer, as before).
+  double buffer_capacity_mol_per_ph = 0.0;
 };
 
 struct TitrantSpec {
@@ -260,6 +266,35 @@ struct FaultPlan {
   double size = 0.0;
 };
 
+/// A primary standard weighed into a rack vessel: its metal is
+/// mass * purity / 100 / molar mass.
+struct StandardSpec {
+  bool present = false;
+  double mass_g = 0.0;
+  double purity_percent = 100.0;
+  /// Calcium carbonate, 100.0869 g/mol (from the IUPAC 2013 standard atomic
+  /// weights; recalled from memory): the usual standard for EDTA.
+  double molar_mass_g_per_mol = 100.0869;
+  /// Metal the standard brings, mol.
+  double metal_mol() const { return mass_g * purity_percent / 100.0 / molar_mass_g_per_mol; }
+};
+
+/// A vessel of the rack of a sample changer: what it truly holds (hidden
+/// truths; the controller knows only the position and what the lab wrote).
+struct RackPosition {
+  int position = 0;   ///< 1..sample_changer.positions
+  std::string label;  ///< what the lab wrote on the vessel
+  /// The scenario's sample with this position's fields in place of its own.
+  SampleSpec sample;
+  /// A primary standard instead of a sample: its metal (in sample.volume_ml).
+  StandardSpec standard;
+  /// Its own chemistry section (present), else the scenario's.
+  ChemistrySpec chemistry;
+  /// The vessel stands on the balance and the burette delivers onto it (a
+  /// gravimetric burette check); it holds water only.
+  bool on_balance = false;
+};
+
 struct Scenario {
   std::string name;
   std::uint64_t seed = 1;
@@ -282,7 +317,20 @@ struct Scenario {
   /// The general chemistry (see ChemistrySpec); unset: the 1:1 model above.
   ChemistrySpec chemistry;
   ReplaySpec replay;
+  /// The vessels of the sample changer's rack (empty: one vessel, the
+  /// sample above, whatever the changer does).
+  std::vector<RackPosition> rack;
 };
+
+/// The rack position's entry, or nullptr if the rack holds nothing there.
+const RackPosition* rack_position(const Scenario& scenario, int position);
+/// The scenario as seen by the vessel at a rack position: the position's
+/// sample, standard or chemistry in place of the scenario's own (a
+/// position not in the rack: the scenario itself).
+Scenario vessel_scenario(const Scenario& scenario, int position);
+/// Water only: the metal the vessel of an on_balance position holds, mol/L
+/// (a trace, so that the electrode still reads a finite potential).
+inline constexpr double kWaterTraceMetalMolPerL = 1e-9;
 
 /// Parses a scenario document. Errors name the field (and line for syntax).
 Result<Scenario> parse_scenario(std::string_view json_text, std::string_view source_name);

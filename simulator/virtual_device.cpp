@@ -91,6 +91,8 @@ std::string VirtualDevice::receive(std::string_view bytes) {
 
 protocol::Message VirtualDevice::respond(const protocol::Message& request) {
   auto lock = lock_bench();
+  if (before_each_)
+    before_each_();
   protocol::Message reply = handle(request);
   reply.sequence = request.sequence;
   return reply;
@@ -128,6 +130,8 @@ std::optional<protocol::Message> VirtualDevice::take_streamed() {
   const auto now = clock_.now();
   while (next_stream_ <= now)
     next_stream_ += stream_interval_;
+  if (before_each_)
+    before_each_();
   protocol::Message m = reading();
   m.word = "reading";
   m.sequence = 0;

@@ -62,6 +62,10 @@ class VirtualDevice : public drivers::ByteDevice {
   /// Devices of one bench share their vessel's state: they answer one request
   /// at a time under this lock when hosts on several threads talk to them.
   void share_lock(std::mutex* bench_lock) { bench_lock_ = bench_lock; }
+  /// Called under the bench's lock before each request is handled and each
+  /// streamed reading is taken: the bench brings its vessel up to date
+  /// (a sample changer's head that has come down meanwhile).
+  void before_each(std::function<void()> hook) { before_each_ = std::move(hook); }
 
  protected:
   /// Answers one parsed request. Called with the clock at the request's time.
@@ -94,6 +98,7 @@ class VirtualDevice : public drivers::ByteDevice {
   /// Messages delayed by slow_replies: when each is due and its bytes.
   std::deque<std::pair<drivers::Duration, std::string>> delayed_;
   std::mutex* bench_lock_ = nullptr;
+  std::function<void()> before_each_;
   drivers::Duration stream_interval_{0};
   drivers::Duration next_stream_{0};
 };

@@ -39,6 +39,19 @@ VirtualElectrode::VirtualElectrode(const ElectrodeSpec& spec, VesselModel vessel
       vessel_(std::move(vessel)),
       reaction_time_s_(reaction_time_s),
       titrant_in_vessel_ml_(std::move(titrant_in_vessel_ml)) {
+  find_metals();
+}
+
+void VirtualElectrode::set_vessel(VesselModel vessel, double reaction_time_s) {
+  vessel_ = std::move(vessel);
+  reaction_time_s_ = reaction_time_s;
+  started_ = false;
+  find_metals();
+}
+
+void VirtualElectrode::find_metals() {
+  interferents_.clear();
+  coefficients_.clear();
   metal_ = vessel_.metal_index(spec_.metal);
   if (metal_ < 0)
     throw std::invalid_argument("electrode.metal '" + spec_.metal + "' is not in the vessel");

@@ -45,6 +45,13 @@ class VirtualElectrode final : public VirtualDevice {
   void set_additions(std::function<VesselContent()> additions) {
     additions_ = std::move(additions);
   }
+  /// Dips into another vessel (a sample changer's head came down): its
+  /// chemistry and slow-complexation time constant from now on. The
+  /// response starts afresh at the new vessel's equilibrium (an electrode
+  /// rinsed and dipped settles within its response time; the lag of the
+  /// move itself is not modelled). Throws if the electrode's metal or an
+  /// interferent is missing (parse_scenario checks the rack's vessels).
+  void set_vessel(VesselModel vessel, double reaction_time_s);
   /// Serves a stored curve instead of the chemistry: the potential is the
   /// curve at the titrant in the vessel, without lag, noise or drift.
   void set_replay(ReplaySpec replay) { replay_ = std::move(replay); }
@@ -58,6 +65,7 @@ class VirtualElectrode final : public VirtualDevice {
   double lagged_potential_mv();
   /// The reading with drift, noise and faults; false when out of range.
   bool measure(double& potential_mv);
+  void find_metals();
 
   ElectrodeSpec spec_;
   mutable VesselModel vessel_;  // a cache of solved equilibria

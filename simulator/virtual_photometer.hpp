@@ -33,6 +33,12 @@ class VirtualPhotometer final : public VirtualDevice {
   /// stray light included) at a wavelength and the present volumes.
   double true_absorbance(double wavelength_nm) const;
   double wavelength_nm() const { return wavelength_nm_; }
+  /// Looks into another vessel (a sample changer's head came down): its
+  /// chemistry from now on. The zero reference stays as it was taken.
+  void set_vessel(const Scenario& vessel) {
+    scenario_ = vessel;
+    vessels_.clear();
+  }
   /// Serves a stored curve (absorbance against the zero) instead.
   void set_replay(ReplaySpec replay) { replay_ = std::move(replay); }
 

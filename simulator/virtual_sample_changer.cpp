@@ -48,6 +48,8 @@ void VirtualSampleChanger::finish(Duration at, bool stopped) {
     }
     case MotionKind::lower:
       head_down_ = !stopped;
+      if (head_down_)
+        ++lowerings_;
       break;
     case MotionKind::raise:
       head_down_ = stopped;

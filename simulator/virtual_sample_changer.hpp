@@ -16,6 +16,12 @@ class VirtualSampleChanger final : public VirtualDevice {
   bool moving() const;
   /// Seconds of rinsing so far, in total (s).
   double rinsed_s() const;
+  /// Books a motion that has ended by the clock's present time (the device
+  /// itself does so when it next answers; the bench asks before any of its
+  /// devices answers, so that a vessel changes when the head comes down).
+  void refresh() { update(); }
+  /// How many times the head has come fully down so far.
+  int lowerings() const { return lowerings_; }
 
  protected:
   drivers::protocol::Message handle(const drivers::protocol::Message& request) override;
@@ -39,6 +45,7 @@ class VirtualSampleChanger final : public VirtualDevice {
   Motion motion_;
   std::string fault_ = "none";
   double rinsed_s_ = 0.0;
+  int lowerings_ = 0;
 };
 
 }  // namespace veq::simulator
