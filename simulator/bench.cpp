@@ -1,5 +1,6 @@
 #include "simulator/bench.hpp"
 
+#include <algorithm>
 #include <initializer_list>
 #include <stdexcept>
 #include <utility>
@@ -38,6 +39,7 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
       // Separate, fixed streams per device so that one device's draws never
       // shift another's: the same scenario and seed give the same curve.
       burette_(scenario.burette, clock, scenario.seed * 2654435761u + 1),
+      second_burette_(scenario.second_burette, clock, scenario.seed * 2654435761u + 8),
       electrode_(scenario.electrode, vessel_or_throw(scenario), scenario.sample.reaction_time_s,
                  clock, scenario.seed * 2654435761u + 2, [this] { return titrant_in_vessel_ml(); }),
       burette_line_("burette", burette_, clock),
@@ -54,11 +56,13 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
       photometer_line_("photometer", photometer_, clock),
       balance_line_("balance", balance_, clock),
       stirrer_line_("stirrer", stirrer_, clock),
-      changer_line_("sample_changer", changer_, clock) {
+      changer_line_("sample_changer", changer_, clock),
+      second_burette_line_("second_burette", second_burette_, clock) {
   // Every device of the vessel answers one request at a time: the electrode
   // and photometer read what the burette and doser have put in.
-  for (VirtualDevice* d : std::initializer_list<VirtualDevice*>{
-           &burette_, &electrode_, &doser_, &photometer_, &balance_, &stirrer_, &changer_}) {
+  for (VirtualDevice* d :
+       std::initializer_list<VirtualDevice*>{&burette_, &electrode_, &doser_, &photometer_,
+                                             &balance_, &stirrer_, &changer_, &second_burette_}) {
     d->share_lock(&vessel_lock_);
     // The head may have come down since any device last answered.
     if (!scenario.rack.empty())
@@ -77,7 +81,7 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
       {&burette_, &burette_line_}, {&electrode_, &electrode_line_},
       {&doser_, &doser_line_},     {&photometer_, &photometer_line_},
       {&balance_, &balance_line_}, {&stirrer_, &stirrer_line_},
-      {&changer_, &changer_line_}};
+      {&changer_, &changer_line_}, {&second_burette_, &second_burette_line_}};
   for (const auto& [device, line] : cables)
     device->on_disconnect([line = line] { line->close(); });
   burette_.set_fault(scenario.burette_fault);
@@ -87,12 +91,13 @@ SimulatedBench::SimulatedBench(const Scenario& scenario, drivers::Clock& clock)
   balance_.set_fault(scenario.balance_fault);
   stirrer_.set_fault(scenario.stirrer_fault);
   changer_.set_fault(scenario.sample_changer_fault);
+  second_burette_.set_fault(scenario.second_burette_fault);
 }
 
 void SimulatedBench::disconnect() {
   for (drivers::MemoryTransport* line :
        {&burette_line_, &electrode_line_, &doser_line_, &photometer_line_, &balance_line_,
-        &stirrer_line_, &changer_line_})
+        &stirrer_line_, &changer_line_, &second_burette_line_})
     line->close();
 }
 
@@ -111,6 +116,8 @@ VirtualDevice* SimulatedBench::device(std::string_view role) {
     return &stirrer_;
   if (role == "sample_changer")
     return &changer_;
+  if (role == "second_burette")
+    return &second_burette_;
   return nullptr;
 }
 
@@ -134,6 +141,12 @@ bool SimulatedBench::add_fault(std::string_view role, FaultPlan plan) {
 
 double SimulatedBench::titrant_in_vessel_ml() const {
   return burette_.true_delivered_ml() - burette_zero_ml_;
+}
+
+double SimulatedBench::second_titrant_in_vessel_ml() const {
+  if (!scenario_.second_titrant.present)
+    return 0.0;
+  return second_burette_.true_delivered_ml() - second_burette_zero_ml_;
 }
 
 int SimulatedBench::position() const {
@@ -162,6 +175,7 @@ void SimulatedBench::take_vessel(int position) const {
   // Titrant and reagents count from now: their totals so far are the new
   // vessel's zero.
   burette_zero_ml_ = burette_.true_delivered_ml();
+  second_burette_zero_ml_ = second_burette_.true_delivered_ml();
   for (std::size_t i = 0; i < kReagents.size(); ++i)
     doser_zero_ml_[i] = doser_.true_added_ml(kReagents[i]);
   truth_vessel_ = vessel_or_throw(vessel_);
@@ -178,6 +192,7 @@ double SimulatedBench::on_balance_ml() const {
 VesselContent SimulatedBench::additions() const {
   VesselContent c;
   c.extra_metal_mol = vessel_.sample.blank_metal_mol;
+  c.second_titrant_ml = second_titrant_in_vessel_ml();
   const auto& d = scenario_.auxiliary_doser;
   const std::array<const ReagentSpec*, 4> bottles = {&d.buffer, &d.masking_agent, &d.indicator,
                                                      &d.water};
@@ -215,8 +230,8 @@ std::vector<std::pair<std::string, double>> vessel_metals_mol(const Scenario& s)
 }
 
 /// Burette reading (mL) per mol of titrant truly delivered.
-double reading_ml_per_mol(const TitrantSpec& titrant, const BuretteSpec& burette) {
-  return 1000.0 / titrant.true_conc_mol_per_l / (1.0 + burette.systematic_error_percent / 100.0);
+double reading_ml_per_mol(double true_conc_mol_per_l, const BuretteSpec& burette) {
+  return 1000.0 / true_conc_mol_per_l / (1.0 + burette.systematic_error_percent / 100.0);
 }
 
 }  // namespace
@@ -257,10 +272,18 @@ BenchTruths SimulatedBench::truths() const {
       t.indicator_bound_metal_mol = fraction * indicator_mol;
     }
   }
-  const double per_reading_ml = reading_ml_per_mol(s.titrant, s.burette);
+  const double per_reading_ml = reading_ml_per_mol(s.titrant.true_conc_mol_per_l, s.burette);
   t.sample_equivalence_reading_ml = sample_mol * per_reading_ml;
   t.vessel_equivalence_reading_ml =
       (sample_mol + t.blank_metal_mol - t.premixed_titrant_mol) * per_reading_ml;
+  if (s.second_titrant.present) {
+    t.second_titrant_delivered_ml = added.second_titrant_ml;
+    const double free_mol = t.titrant_delivered_ml / 1000.0 * s.titrant.true_conc_mol_per_l -
+                            (sample_mol + t.blank_metal_mol);
+    t.second_equivalence_reading_ml =
+        std::max(0.0, free_mol) *
+        reading_ml_per_mol(s.second_titrant.true_conc_mol_per_l, s.second_burette);
+  }
   return t;
 }
 
@@ -284,7 +307,7 @@ PositionTruths SimulatedBench::position_truths(int position) const {
   double mol = 0.0;
   for (const auto& m : t.metals_mol)
     mol += m.second;
-  t.equivalence_reading_ml = mol * reading_ml_per_mol(v.titrant, v.burette);
+  t.equivalence_reading_ml = mol * reading_ml_per_mol(v.titrant.true_conc_mol_per_l, v.burette);
   return t;
 }
 

@@ -57,6 +57,13 @@ struct BenchTruths {
   /// changer's head last came down; 0 before that (the scenario's own
   /// vessel). Everything above counts from that moment.
   int position = 0;
+  /// Back-titration (second_titrant): what the second burette has truly
+  /// delivered into the vessel, mL, and its counter reading at which its
+  /// metal equals the first titrant left free by the vessel's metal (first
+  /// titrant truly delivered - sample - blank), with its systematic error
+  /// and the second titrant's true concentration, mL (0 without one).
+  double second_titrant_delivered_ml = 0.0;
+  double second_equivalence_reading_ml = 0.0;
 };
 
 /// What a rack position's vessel truly holds (hidden truths).
@@ -83,6 +90,11 @@ class SimulatedBench {
   drivers::MemoryTransport& burette_line() { return burette_line_; }
   drivers::MemoryTransport& electrode_line() { return electrode_line_; }
   VirtualBurette& burette() { return burette_; }
+  /// The second burette (role "second_burette"): the scenario's
+  /// second_titrant for back-titrations; it delivers nothing into the
+  /// vessel's chemistry without one.
+  drivers::MemoryTransport& second_burette_line() { return second_burette_line_; }
+  VirtualBurette& second_burette() { return second_burette_; }
   VirtualElectrode& electrode() { return electrode_; }
   drivers::MemoryTransport& auxiliary_doser_line() { return doser_line_; }
   drivers::MemoryTransport& photometer_line() { return photometer_line_; }
@@ -100,7 +112,8 @@ class SimulatedBench {
   void disconnect();
 
   /// The device of a role ("burette", "electrode", "auxiliary_doser",
-  /// "photometer", "balance", "stirrer", "sample_changer"), or nullptr.
+  /// "photometer", "balance", "stirrer", "sample_changer",
+  /// "second_burette"), or nullptr.
   VirtualDevice* device(std::string_view role);
   /// Switches a line or sensor fault of a role at run time: the plan's
   /// after_s and until_s are moments of device time (after_s = now: at once);
@@ -126,6 +139,8 @@ class SimulatedBench {
   VesselContent additions() const;
   /// Titrant truly in the vessel now, mL (delivered since it was lowered into).
   double titrant_in_vessel_ml() const;
+  /// Second titrant truly in the vessel now, mL (0 without a second_titrant).
+  double second_titrant_in_vessel_ml() const;
   const Scenario& scenario() const { return scenario_; }
 
  private:
@@ -143,11 +158,13 @@ class SimulatedBench {
   mutable int lowerings_seen_ = 0;
   mutable bool on_balance_ = false;
   mutable double burette_zero_ml_ = 0.0;
+  mutable double second_burette_zero_ml_ = 0.0;
   mutable std::array<double, 6> doser_zero_ml_{};
   mutable double balance_kept_ml_ = 0.0;  ///< delivered onto earlier on_balance vessels
   std::mutex vessel_lock_;
   mutable VesselModel truth_vessel_;  // for the indicator's share
   VirtualBurette burette_;
+  VirtualBurette second_burette_;
   mutable VirtualElectrode electrode_;
   drivers::MemoryTransport burette_line_;
   drivers::MemoryTransport electrode_line_;
@@ -161,6 +178,7 @@ class SimulatedBench {
   drivers::MemoryTransport balance_line_;
   drivers::MemoryTransport stirrer_line_;
   drivers::MemoryTransport changer_line_;
+  drivers::MemoryTransport second_burette_line_;
 };
 
 }  // namespace veq::simulator

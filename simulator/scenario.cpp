@@ -114,6 +114,25 @@ struct Reader {
                   -20.0, 20.0);
   }
 
+  bool burette(const json& j, const char* section, BuretteSpec& out, FaultPlan& fault_out) {
+    text(j, section, "model", out.model);
+    number(j, section, "cylinder_ml", out.cylinder_ml, false, 0.1, 1000.0);
+    number(j, section, "steps_per_cylinder", out.steps_per_cylinder, false, 10, 1e8);
+    number(j, section, "max_rate_ml_per_min", out.max_rate_ml_per_min, false, 0.01, 1000.0);
+    number(j, section, "max_dose_ml", out.max_dose_ml, false, 0.001, 1000.0);
+    number(j, section, "systematic_error_percent", out.systematic_error_percent, false, -10.0,
+           10.0);
+    number(j, section, "random_error_ml", out.random_error_ml, false, 0.0, 1.0);
+    number(j, section, "reservoir_ml", out.reservoir_ml, false, 0.0, 1e6);
+    text(j, section, "serial_number", out.serial_number);
+    number(j, section, "max_fill_rate_ml_per_min", out.max_fill_rate_ml_per_min, false, 0.0,
+           1000.0);
+    integer(j, section, "ports", out.ports, 0, 16);
+    motor_fault(j, section, out.motor_fault);
+    fault(j, section, fault_out);
+    return error.empty();
+  }
+
   bool motor_fault(const json& obj, const char* section, MotorFault& out) {
     if (!obj.contains("motor_fault"))
       return true;
@@ -436,23 +455,33 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
       r.fail("titrant.pka", "missing (acid constants of the titrant)");
     }
   }
-  if (const json* j = r.section(doc, "burette", false)) {
-    r.text(*j, "burette", "model", s.burette.model);
-    r.number(*j, "burette", "cylinder_ml", s.burette.cylinder_ml, false, 0.1, 1000.0);
-    r.number(*j, "burette", "steps_per_cylinder", s.burette.steps_per_cylinder, false, 10, 1e8);
-    r.number(*j, "burette", "max_rate_ml_per_min", s.burette.max_rate_ml_per_min, false, 0.01,
-             1000.0);
-    r.number(*j, "burette", "max_dose_ml", s.burette.max_dose_ml, false, 0.001, 1000.0);
-    r.number(*j, "burette", "systematic_error_percent", s.burette.systematic_error_percent, false,
-             -10.0, 10.0);
-    r.number(*j, "burette", "random_error_ml", s.burette.random_error_ml, false, 0.0, 1.0);
-    r.number(*j, "burette", "reservoir_ml", s.burette.reservoir_ml, false, 0.0, 1e6);
-    r.text(*j, "burette", "serial_number", s.burette.serial_number);
-    r.number(*j, "burette", "max_fill_rate_ml_per_min", s.burette.max_fill_rate_ml_per_min, false,
-             0.0, 1000.0);
-    r.integer(*j, "burette", "ports", s.burette.ports, 0, 16);
-    r.motor_fault(*j, "burette", s.burette.motor_fault);
-    r.fault(*j, "burette", s.burette_fault);
+  if (const json* j = r.section(doc, "burette", false))
+    r.burette(*j, "burette", s.burette, s.burette_fault);
+  s.second_burette.serial_number = "virtual-burette-2";
+  if (const json* j = r.section(doc, "second_burette", false)) {
+    r.burette(*j, "second_burette", s.second_burette, s.second_burette_fault);
+    if (!doc.contains("second_titrant"))
+      r.fail("second_burette", "needs a second_titrant section (what it holds)");
+  }
+  if (const json* j = r.section(doc, "second_titrant", false)) {
+    auto& t = s.second_titrant;
+    t.present = true;
+    r.text(*j, "second_titrant", "name", t.name);
+    if (!j->contains("metal"))
+      r.fail("second_titrant.metal", "missing (the metal it is, e.g. \"zinc\")");
+    r.text(*j, "second_titrant", "metal", t.metal);
+    r.integer(*j, "second_titrant", "charge", t.charge, 1, 4);
+    r.number(*j, "second_titrant", "label_conc_mol_per_l", t.label_conc_mol_per_l, true, 1e-6, 2.0);
+    t.true_conc_mol_per_l = t.label_conc_mol_per_l;
+    r.number(*j, "second_titrant", "true_conc_mol_per_l", t.true_conc_mol_per_l, false, 1e-6, 2.0);
+    r.number(*j, "second_titrant", "log10_formation_constant", t.log10_formation_constant, true,
+             0.0, 40.0);
+    r.number(*j, "second_titrant", "alpha_metal", t.alpha_metal, false, 1e-30, 1.0);
+    if (general)
+      r.fail("second_titrant", "needs the 1:1 model (a scenario without a chemistry section)");
+    if (r.error.empty() && t.metal == s.sample.metal)
+      r.fail("second_titrant.metal",
+             "must differ from the sample's metal '" + s.sample.metal + "'");
   }
   if (const json* j = r.section(doc, "electrode", false)) {
     r.text(*j, "electrode", "model", s.electrode.model);
@@ -491,8 +520,10 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
                  "free concentrations come from its equilibrium)");
       }
     }
-    if (!s.electrode.metal.empty() && !general)
-      r.fail("electrode.metal", "needs a chemistry section");
+    r.number(*j, "electrode", "detection_limit_mol_per_l", s.electrode.detection_limit_mol_per_l,
+             false, 0.0, 1.0);
+    r.boolean(*j, "electrode", "reports_ph", s.electrode.reports_ph);
+    r.number(*j, "electrode", "ph_noise", s.electrode.ph_noise, false, 0.0, 1.0);
     r.fault(*j, "electrode", s.electrode_fault);
   }
   if (const json* j = r.section(doc, "auxiliary_doser", false)) {
@@ -628,6 +659,25 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
         read_rack_position(r, rack[i], doc, i, s);
     }
   }
+  if (r.error.empty() && !general && !s.electrode.metal.empty() &&
+      s.electrode.metal != s.sample.metal &&
+      !(s.second_titrant.present && s.electrode.metal == s.second_titrant.metal)) {
+    r.fail("electrode.metal", "'" + s.electrode.metal +
+                                  "' is neither the sample's metal nor the second titrant's (a "
+                                  "chemistry section names other metals)");
+  }
+  for (std::size_t i = 0; i < s.rack.size() && r.error.empty(); ++i) {
+    const RackPosition& p = s.rack[i];
+    const std::string where = "rack[" + std::to_string(i) + "]";
+    if (s.second_titrant.present && p.chemistry.present)
+      r.fail(where + ".chemistry", "a second titrant needs the 1:1 model in every vessel");
+    if (!p.chemistry.present && !p.on_balance && !s.electrode.metal.empty() &&
+        s.electrode.metal != p.sample.metal &&
+        !(s.second_titrant.present && s.electrode.metal == s.second_titrant.metal)) {
+      r.fail(where + ".metal", "'" + p.sample.metal + "' is not '" + s.electrode.metal +
+                                   "', the metal the electrode senses (electrode.metal)");
+    }
+  }
   if (!r.error.empty())
     return make_error(ErrorKind::invalid_input, r.error);
   for (std::size_t i = 0; i < s.rack.size(); ++i) {
@@ -691,6 +741,10 @@ Scenario vessel_scenario(const Scenario& scenario, int position) {
     v.sample.metal_conc_mol_per_l = p->standard.metal_mol() * 1000.0 / v.sample.volume_ml;
   if (p->on_balance) {
     v.chemistry = ChemistrySpec{};
+    // The trace is of the metal the electrode senses, whatever it is.
+    if (!v.electrode.metal.empty() &&
+        !(v.second_titrant.present && v.electrode.metal == v.second_titrant.metal))
+      v.sample.metal = v.electrode.metal;
     v.sample.metal_conc_mol_per_l = kWaterTraceMetalMolPerL;
     v.sample.blank_metal_mol = 0.0;
   }

@@ -70,6 +70,21 @@ struct BuretteSpec {
   MotorFault motor_fault;
 };
 
+/// The titrant of a second burette for a back-titration: a solution of a
+/// metal that binds what is left of the first titrant (EDTA) after the
+/// sample's metal has taken its share.
+struct SecondTitrantSpec {
+  bool present = false;
+  std::string name = "zinc sulfate";
+  std::string metal = "zinc";         ///< the metal it is (the electrode may sense it)
+  int charge = 2;                     ///< ionic charge of the free metal
+  double label_conc_mol_per_l = 0.0;  ///< on the bottle (given to the controller), mol/L
+  double true_conc_mol_per_l = 0.0;   ///< what it really is (hidden truth), mol/L
+  /// log Kf of its metal with the first titrant, 1:1 complex.
+  double log10_formation_constant = 0.0;
+  double alpha_metal = 1.0;  ///< fraction of its metal free of auxiliary ligands
+};
+
 /// A metal other than the measured one that the electrode also answers to
 /// (Nikolsky-Eisenman), with its potentiometric selectivity coefficient.
 struct Interferent {
@@ -91,9 +106,19 @@ struct ElectrodeSpec {
   /// gradually, as if the vessel's content near it followed the bulk with
   /// this first-order lag. 0: perfectly mixed at once.
   double mixing_time_s = 0.0;
-  /// Chemistry section only: the metal the electrode senses (default: the
-  /// first metal), e.g. "Cu" for indirect indication with a little Cu-EDTA.
+  /// The metal the electrode senses (default: the first metal), e.g. "Cu"
+  /// for indirect indication with a little Cu-EDTA (chemistry section), or
+  /// the second titrant's metal for a back-titration (1:1 model).
   std::string metal;
+  /// Activity the electrode cannot see below, mol/L: it reads
+  /// log10(a + limit) (the detection limit of an ion-selective electrode).
+  /// 0: none. A back-titration's electrode needs one, or it reads the free
+  /// second metal of 0 before the first drop as a floor of 1e-30 mol/L.
+  double detection_limit_mol_per_l = 0.0;
+  /// The meter also reports the vessel's pH (a pH input beside the metal
+  /// electrode): `ph=` in each reading, the true pH plus noise.
+  bool reports_ph = false;
+  double ph_noise = 0.005;  ///< standard deviation of the reported pH's noise
   /// Chemistry section only: other metals it answers to.
   std::vector<Interferent> interferents;
 };
@@ -317,6 +342,11 @@ struct Scenario {
   /// The general chemistry (see ChemistrySpec); unset: the 1:1 model above.
   ChemistrySpec chemistry;
   ReplaySpec replay;
+  /// A second burette for back-titrations (unused without second_titrant).
+  /// Its serial number defaults to virtual-burette-2 when read from a file.
+  BuretteSpec second_burette;
+  FaultPlan second_burette_fault;
+  SecondTitrantSpec second_titrant;
   /// The vessels of the sample changer's rack (empty: one vessel, the
   /// sample above, whatever the changer does).
   std::vector<RackPosition> rack;

@@ -65,6 +65,13 @@ Result<VesselModel> VesselModel::create(const Scenario& scenario,
   if (!scenario.chemistry.present) {
     v.one_to_one_ = scenario_chemistry(scenario);
     v.charge_ = scenario.sample.charge;
+    v.metal_name_ = scenario.sample.metal;
+    v.second_ = scenario.second_titrant;
+    v.pka_ = scenario.titrant.pka;
+    v.ph0_ = v.ph_ = scenario.sample.ph;
+    v.capacity_mol_per_ph_ = scenario.sample.buffer_capacity_mol_per_ph;
+    v.log10_kf_ = scenario.sample.log10_formation_constant;
+    v.alpha_metal_ = scenario.sample.alpha_metal;
     if (auto r = v.solve(VesselContent{}); !r)
       return r.error();
     return v;
@@ -103,12 +110,17 @@ Result<VesselModel> VesselModel::create(const Scenario& scenario,
 }
 
 int VesselModel::metal_count() const {
-  return general_ ? static_cast<int>(base_.metals.size()) : 1;
+  return general_ ? static_cast<int>(base_.metals.size()) : second_.present ? 2 : 1;
 }
 
 int VesselModel::metal_index(std::string_view name) const {
-  if (!general_ || name.empty())
+  if (name.empty())
     return 0;
+  if (!general_) {
+    if (name == metal_name_)
+      return 0;
+    return second_.present && name == second_.metal ? 1 : -1;
+  }
   for (std::size_t i = 0; i < base_.metals.size(); ++i) {
     if (base_.metals[i].name == name)
       return static_cast<int>(i);
@@ -117,7 +129,9 @@ int VesselModel::metal_index(std::string_view name) const {
 }
 
 int VesselModel::metal_charge(int metal) const {
-  return general_ ? charges_.at(static_cast<std::size_t>(metal)) : charge_;
+  if (general_)
+    return charges_.at(static_cast<std::size_t>(metal));
+  return metal == 1 ? second_.charge : charge_;
 }
 
 Result<void> VesselModel::rebuild(const VesselContent& c) {
@@ -170,12 +184,17 @@ Result<void> VesselModel::solve(const VesselContent& content) {
   c.titrant_ml = std::max(0.0, c.titrant_ml);
   if (!general_) {
     chemistry::OneToOneTitration d = one_to_one_;
-    const double other = std::max(0.0, c.other_ml);
+    const double second_ml = std::max(0.0, c.second_titrant_ml);
+    const double other = std::max(0.0, c.other_ml) + second_ml;
     const double mmol = one_to_one_.metal_conc_mol_per_l * one_to_one_.sample_volume_ml +
                         c.extra_metal_mol * 1000.0;
     d.sample_volume_ml = one_to_one_.sample_volume_ml + other;
     d.metal_conc_mol_per_l = mmol / d.sample_volume_ml;
+    set_ph(c.strong_acid_mol);
+    d.conditional_constant = one_to_one_.conditional_constant;
     species_ = vessel_species(d, c.titrant_ml);
+    if (second_.present)
+      solve_second(d.sample_volume_ml + c.titrant_ml, second_ml);
     solved_ = content;
     return {};
   }
@@ -195,9 +214,47 @@ Result<void> VesselModel::solve(const VesselContent& content) {
   return {};
 }
 
+void VesselModel::set_ph(double strong_acid_mol) {
+  if (!(capacity_mol_per_ph_ > 0.0))
+    return;
+  // A linear buffer: the pH falls by the net strong acid over the capacity.
+  const double ph = std::clamp(ph0_ - strong_acid_mol / capacity_mol_per_ph_, 0.0, 14.0);
+  if (ph == ph_)
+    return;
+  ph_ = ph;
+  one_to_one_.conditional_constant = chemistry::conditional_formation_constant(
+      log10_kf_, chemistry::fully_deprotonated_fraction(pka_, ph_), alpha_metal_);
+}
+
+void VesselModel::solve_second(double volume_ml, double second_ml) {
+  // The sample's metal holds its share of the first titrant (its complex
+  // far stronger and inert); the second titrant's metal meets the rest.
+  // The exact 1:1 closed form with roles swapped: the free first titrant
+  // is the "metal", the second titrant the "titrant".
+  const double free_mmol = species_.free_titrant_mol_per_l * volume_ml;
+  const double second_total = second_.true_conc_mol_per_l * second_ml / volume_ml;
+  if (!(free_mmol > 0.0) || !(second_ml > 0.0)) {
+    second_species_ = VesselSpecies{0.0, 0.0, second_total};
+    second_species_.free_metal_mol_per_l = free_mmol / volume_ml;
+    return;
+  }
+  chemistry::OneToOneTitration b;
+  b.sample_volume_ml = volume_ml - second_ml;
+  b.metal_conc_mol_per_l = free_mmol / b.sample_volume_ml;
+  b.titrant_conc_mol_per_l = second_.true_conc_mol_per_l;
+  b.conditional_constant = chemistry::conditional_formation_constant(
+      second_.log10_formation_constant, chemistry::fully_deprotonated_fraction(pka_, ph_),
+      second_.alpha_metal);
+  second_species_ = vessel_species(b, second_ml);
+}
+
 double VesselModel::log10_activity(int metal) const {
-  if (!general_)
-    return std::log10(species_.free_metal_mol_per_l);
+  if (!general_) {
+    // Nothing of the second metal before its first drop: a floor keeps the
+    // logarithm finite (an electrode's detection limit lifts it further).
+    const double free = free_metal_mol_per_l(metal);
+    return std::log10(std::max(free, 1e-30));
+  }
   double a = speciation_.log10_free[static_cast<std::size_t>(1 + metal)];
   if (base_.ionic_strength_mol_per_l) {
     a += chemistry::davies_log10_activity_coefficient(metal_charge(metal),
@@ -208,12 +265,12 @@ double VesselModel::log10_activity(int metal) const {
 
 double VesselModel::free_metal_mol_per_l(int metal) const {
   if (!general_)
-    return species_.free_metal_mol_per_l;
+    return metal == 1 ? second_species_.free_titrant_mol_per_l : species_.free_metal_mol_per_l;
   return speciation_.free_mol_per_l[static_cast<std::size_t>(1 + metal)];
 }
 
 double VesselModel::ph() const {
-  return general_ ? speciation_.ph : std::nan("");
+  return general_ ? speciation_.ph : ph_;
 }
 
 std::optional<double> VesselModel::absorbance() const {

@@ -20,10 +20,11 @@ namespace veq::simulator {
 
 /// What has entered the vessel besides the sample, at one moment.
 struct VesselContent {
-  double titrant_ml = 0.0;       ///< titrant that has reacted (or reached the probe), mL
-  double other_ml = 0.0;         ///< auxiliary reagents, mL (dilution)
-  double extra_metal_mol = 0.0;  ///< blank: metal from the buffer and reagents, mol
-  double strong_acid_mol = 0.0;  ///< strong acid from reagents (negative: base), mol
+  double titrant_ml = 0.0;         ///< titrant that has reacted (or reached the probe), mL
+  double other_ml = 0.0;           ///< auxiliary reagents, mL (dilution)
+  double extra_metal_mol = 0.0;    ///< blank: metal from the buffer and reagents, mol
+  double strong_acid_mol = 0.0;    ///< strong acid from reagents (negative: base), mol
+  double second_titrant_ml = 0.0;  ///< from the second burette (back-titration), mL
 
   bool operator==(const VesselContent&) const = default;
 };
@@ -58,8 +59,9 @@ class VesselModel {
   /// Solves at a content (cached: the same content is not solved twice).
   Result<void> solve(const VesselContent& content);
 
-  /// Index of a metal by name (chemistry section) or 0 for the 1:1 sample's
-  /// metal; -1 if unknown. Empty name: the first metal.
+  /// Index of a metal by name (chemistry section), or in the 1:1 model 0
+  /// for the sample's metal and 1 for the second titrant's; -1 if unknown.
+  /// Empty name: the first metal.
   int metal_index(std::string_view name) const;
   int metal_count() const;
   int metal_charge(int metal) const;
@@ -71,6 +73,10 @@ class VesselModel {
   double ph() const;
   /// 1:1 model only: free metal, complex and free titrant.
   const VesselSpecies& one_to_one_species() const { return species_; }
+  /// 1:1 model with a second titrant only: the back-titration's species
+  /// with roles swapped: "metal" is the first titrant left free by the
+  /// sample's metal, "titrant" the second titrant's metal.
+  const VesselSpecies& second_species() const { return second_species_; }
   /// Chemistry section only: absorbance per the indicator's and complexes'
   /// absorptivities at the wavelength given to create() (Beer-Lambert over
   /// the sample's path length in the section's signal), or nothing if the
@@ -83,12 +89,26 @@ class VesselModel {
  private:
   VesselModel() = default;
   Result<void> rebuild(const VesselContent& content);
+  /// 1:1: the pH after net strong acid (mol) and the conditional constant at it.
+  void set_ph(double strong_acid_mol);
+  /// 1:1: the back-titration's species in the vessel's volume (mL).
+  void solve_second(double volume_ml, double second_ml);
 
   bool general_ = false;
   // 1:1
   chemistry::OneToOneTitration one_to_one_;
   int charge_ = 2;
   VesselSpecies species_;
+  std::string metal_name_;
+  SecondTitrantSpec second_;
+  VesselSpecies second_species_;
+  // pH and what the conditional constants need to follow it
+  std::vector<double> pka_;
+  double ph0_ = 7.0;
+  double ph_ = 7.0;
+  double capacity_mol_per_ph_ = 0.0;
+  double log10_kf_ = 0.0;
+  double alpha_metal_ = 1.0;
   // general
   std::shared_ptr<const chemistry::ConstantsLibrary> library_;
   chemistry::SampleComposition base_;

@@ -57,6 +57,9 @@ void VirtualElectrode::find_metals() {
     throw std::invalid_argument("electrode.metal '" + spec_.metal + "' is not in the vessel");
   for (const Interferent& f : spec_.interferents) {
     const int j = vessel_.metal_index(f.metal);
+    // A 1:1 vessel (a rack's water on the balance) holds no other metals.
+    if (j < 0 && !vessel_.general())
+      continue;
     if (j < 0 || f.metal.empty())
       throw std::invalid_argument("electrode interferent '" + f.metal + "' is not in the vessel");
     interferents_.push_back(j);
@@ -78,9 +81,14 @@ double VirtualElectrode::equilibrium_potential_mv(double titrant_ml) const {
     charges.push_back(vessel_.metal_charge(j));
     activities.push_back(vessel_.log10_activity(j));
   }
+  double log10_activity = vessel_.log10_activity(metal_);
+  if (spec_.detection_limit_mol_per_l > 0.0) {
+    // Below its detection limit the membrane sees its own leached ions.
+    log10_activity = std::log10(std::pow(10.0, log10_activity) + spec_.detection_limit_mol_per_l);
+  }
   // A cation-selective electrode: E = E0 + (S / z) log10 a = E0 - (S / z) pM.
-  return nikolsky_eisenman_mv(spec_.e0_mv, slope, vessel_.metal_charge(metal_),
-                              vessel_.log10_activity(metal_), coefficients_, charges, activities);
+  return nikolsky_eisenman_mv(spec_.e0_mv, slope, vessel_.metal_charge(metal_), log10_activity,
+                              coefficients_, charges, activities);
 }
 
 double VirtualElectrode::lagged_potential_mv() {
