@@ -108,8 +108,13 @@ void VirtualBurette::finish_motion(double moved_ml, const std::string& why) {
                       fraction * motion_.dose_error_ml;
     cylinder_content_ml_ -= moved_ml;
   } else if (motion_.kind == MotionKind::fill) {
-    cylinder_content_ml_ += moved_ml;
-    spec_.reservoir_ml -= moved_ml;
+    // A completed fill leaves the cylinder exactly full: the piston is at its
+    // stop. (Adding the moved volume alone leaves it a rounding short of
+    // full, and a host checking "full" would see the reservoir as empty.)
+    const double before = cylinder_content_ml_;
+    cylinder_content_ml_ =
+        why == "completed" ? spec_.cylinder_ml : std::min(spec_.cylinder_ml, before + moved_ml);
+    spec_.reservoir_ml -= cylinder_content_ml_ - before;
   }
   last_stop_ = why;
   if (why == "fault")

@@ -249,6 +249,96 @@ BEGIN SELECT RAISE(ABORT, 'evaluation choices cannot be changed'); END;
 CREATE TRIGGER evaluation_choices_are_undeletable BEFORE DELETE ON evaluation_choices
 BEGIN SELECT RAISE(ABORT, 'evaluation choices cannot be deleted'); END;
 )sql",
+    // 5: series of entries run unattended, each entry's determinations and
+    // results, gravimetric burette checks (controller/store/series_store.hpp).
+    // Determinations, results and checks are append-only; an entry's status
+    // changes once, from running to how it ended.
+    R"sql(
+CREATE TABLE series (
+  id INTEGER PRIMARY KEY,
+  name TEXT NOT NULL,
+  text TEXT NOT NULL,
+  software_version TEXT NOT NULL,
+  started_utc TEXT NOT NULL,
+  finished_utc TEXT NOT NULL DEFAULT '',
+  status INTEGER NOT NULL,
+  reason TEXT NOT NULL DEFAULT ''
+);
+CREATE TABLE series_entries (
+  id INTEGER PRIMARY KEY,
+  series_id INTEGER NOT NULL REFERENCES series(id),
+  idx INTEGER NOT NULL,
+  kind TEXT NOT NULL,
+  label TEXT NOT NULL,
+  method_name TEXT NOT NULL DEFAULT '',
+  method_version INTEGER NOT NULL DEFAULT 0,
+  status TEXT NOT NULL,
+  note TEXT NOT NULL DEFAULT '',
+  started_utc TEXT NOT NULL,
+  finished_utc TEXT NOT NULL DEFAULT ''
+);
+CREATE INDEX series_entries_by_series ON series_entries(series_id);
+CREATE TRIGGER ended_series_entries_are_unchangeable BEFORE UPDATE ON series_entries
+WHEN OLD.status <> 'running'
+BEGIN SELECT RAISE(ABORT, 'an ended series entry cannot be changed'); END;
+CREATE TABLE determinations (
+  id INTEGER PRIMARY KEY,
+  entry_id INTEGER NOT NULL REFERENCES series_entries(id),
+  replicate INTEGER NOT NULL,
+  position INTEGER NOT NULL,
+  run_id INTEGER REFERENCES runs(id),
+  second_run_id INTEGER REFERENCES runs(id),
+  value REAL NOT NULL,
+  unit TEXT NOT NULL,
+  counted INTEGER NOT NULL CHECK (counted IN (0, 1)),
+  flags TEXT NOT NULL DEFAULT '',
+  detail_json TEXT NOT NULL DEFAULT '{}',
+  recorded_utc TEXT NOT NULL
+);
+CREATE INDEX determinations_by_entry ON determinations(entry_id);
+CREATE TRIGGER determinations_are_unchangeable BEFORE UPDATE ON determinations
+BEGIN SELECT RAISE(ABORT, 'determinations cannot be changed'); END;
+CREATE TRIGGER determinations_are_undeletable BEFORE DELETE ON determinations
+BEGIN SELECT RAISE(ABORT, 'determinations cannot be deleted'); END;
+CREATE TABLE entry_results (
+  id INTEGER PRIMARY KEY,
+  entry_id INTEGER NOT NULL REFERENCES series_entries(id),
+  name TEXT NOT NULL,
+  value REAL NOT NULL,
+  unit TEXT NOT NULL,
+  count INTEGER NOT NULL,
+  sd REAL NOT NULL,
+  rsd_percent REAL NOT NULL,
+  flags TEXT NOT NULL DEFAULT '',
+  detail_json TEXT NOT NULL DEFAULT '{}',
+  recorded_utc TEXT NOT NULL
+);
+CREATE INDEX entry_results_by_entry ON entry_results(entry_id);
+CREATE TRIGGER entry_results_are_unchangeable BEFORE UPDATE ON entry_results
+BEGIN SELECT RAISE(ABORT, 'entry results cannot be changed'); END;
+CREATE TRIGGER entry_results_are_undeletable BEFORE DELETE ON entry_results
+BEGIN SELECT RAISE(ABORT, 'entry results cannot be deleted'); END;
+CREATE TABLE burette_checks (
+  id INTEGER PRIMARY KEY,
+  entry_id INTEGER REFERENCES series_entries(id),
+  burette TEXT NOT NULL,
+  nominal_volume_ml REAL NOT NULL,
+  test_volume_ml REAL NOT NULL,
+  water_masses_json TEXT NOT NULL,
+  water_temperature_c REAL NOT NULL,
+  mean_volume_ml REAL NOT NULL,
+  systematic_error_percent REAL NOT NULL,
+  random_error_percent REAL NOT NULL,
+  passed INTEGER NOT NULL CHECK (passed IN (0, 1)),
+  limits_source TEXT NOT NULL,
+  checked_utc TEXT NOT NULL
+);
+CREATE INDEX burette_checks_by_burette ON burette_checks(burette);
+CREATE TRIGGER burette_checks_are_unchangeable BEFORE UPDATE ON burette_checks
+BEGIN SELECT RAISE(ABORT, 'burette checks cannot be changed'); END;
+CREATE TRIGGER burette_checks_are_undeletable BEFORE DELETE ON burette_checks
+BEGIN SELECT RAISE(ABORT, 'burette checks cannot be deleted'); END;
+)sql",
 };
 constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
 static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");
@@ -466,6 +556,23 @@ Result<std::unique_ptr<SqliteStore>> SqliteStore::open(const std::string& path) 
     if (s.step() != SQLITE_DONE)
       return store->storage_error("cannot mark interrupted runs");
     store->interrupted_on_open_ = sqlite3_changes(db);
+  }
+  // Likewise a series, and the entry it was running.
+  {
+    const std::string now = utc_now_iso8601();
+    Statement e(db,
+                "UPDATE series_entries SET status = 'interrupted', finished_utc = ?1, note = "
+                "note || CASE WHEN note = '' THEN '' ELSE char(10) END || "
+                "'interrupted: veq stopped before the entry ended' WHERE status = 'running'");
+    e.bind(1, now);
+    Statement s(db,
+                "UPDATE series SET status = ?1, reason = ?2, finished_utc = ?3 WHERE status = ?4");
+    s.bind(1, static_cast<int>(SeriesStatus::interrupted))
+        .bind(2, std::string("interrupted: veq stopped before the series ended"))
+        .bind(3, now)
+        .bind(4, static_cast<int>(SeriesStatus::running));
+    if (e.step() != SQLITE_DONE || s.step() != SQLITE_DONE)
+      return store->storage_error("cannot mark interrupted series");
   }
   return store;
 }

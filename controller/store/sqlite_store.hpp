@@ -6,18 +6,19 @@
 
 #include "controller/store/method_store.hpp"
 #include "controller/store/run_store.hpp"
+#include "controller/store/series_store.hpp"
 
 struct sqlite3;
 
 namespace veq::store {
 
 /// Schema version this build writes; older files are migrated on open.
-inline constexpr int kSchemaVersion = 4;
+inline constexpr int kSchemaVersion = 5;
 
 /// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
 std::string default_database_path();
 
-class SqliteStore final : public RunStore, public MethodStore {
+class SqliteStore final : public RunStore, public MethodStore, public SeriesStore {
  public:
   /// Opens (creating if absent) and migrates a store. Refuses a file that is
   /// not a veq store, or that was written by a newer schema, without touching it.
@@ -61,6 +62,23 @@ class SqliteStore final : public RunStore, public MethodStore {
   Result<std::vector<TiterRecord>> titer_history(const std::string& titrant) override;
   Result<std::int64_t> add_calibration(const CalibrationRecord& calibration) override;
   Result<std::vector<CalibrationRecord>> calibration_history(const std::string& electrode) override;
+
+  Result<std::int64_t> begin_series(const std::string& name, const std::string& text) override;
+  Result<void> finish_series(std::int64_t series_id, SeriesStatus status,
+                             const std::string& reason) override;
+  Result<std::int64_t> begin_entry(const SeriesEntryRecord& record) override;
+  Result<void> finish_entry(std::int64_t entry_id, const std::string& status,
+                            const std::string& note) override;
+  Result<std::int64_t> add_determination(const DeterminationRecord& record) override;
+  Result<std::int64_t> add_entry_result(const EntryResultRecord& record) override;
+  Result<std::int64_t> add_burette_check(const BuretteCheckRecord& record) override;
+  Result<SeriesRecord> load_series(std::int64_t series_id) override;
+  Result<std::vector<SeriesRecord>> list_series() override;
+  Result<std::vector<SeriesEntryRecord>> load_entries(std::int64_t series_id) override;
+  Result<std::vector<DeterminationRecord>> load_determinations(std::int64_t entry_id) override;
+  Result<std::vector<EntryResultRecord>> load_entry_results(std::int64_t entry_id) override;
+  Result<std::vector<BuretteCheckRecord>> burette_check_history(
+      const std::string& burette) override;
 
   /// Runs still marked running when the store was opened, now marked interrupted.
   int interrupted_on_open() const { return interrupted_on_open_; }

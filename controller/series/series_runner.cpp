@@ -1,0 +1,1260 @@
+#include "controller/series/series_runner.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <numeric>
+#include <sstream>
+
+#include <nlohmann/json.hpp>
+
+#include "controller/method/readiness.hpp"
+#include "controller/method/stored_methods.hpp"
+#include "controller/results.hpp"
+
+namespace veq::series {
+
+namespace {
+
+using nlohmann::json;
+
+/// How far a failure reaches.
+enum class Reach {
+  determination,  ///< this vessel only: repeat once on a spare, then flag
+  sample,         ///< this sample only (pH not reached...): flag and go on
+  series,         ///< later results would be untrustworthy: stop the series
+};
+
+struct Failure {
+  Reach reach = Reach::series;
+  std::string reason;
+};
+
+std::string fixed(double v, int digits) {
+  std::ostringstream out;
+  out.setf(std::ios::fixed);
+  out.precision(digits);
+  out << v;
+  return out.str();
+}
+
+Failure device_failure(const std::string& what, const Error& e) {
+  return Failure{Reach::series, what + ": " + e.describe()};
+}
+
+/// What one determination measured.
+struct Measured {
+  int position = 0;
+  std::int64_t run_id = 0;
+  std::int64_t second_run_id = 0;
+  double endpoint_ml = 0.0;  ///< of the (last) titration
+  double endpoint_uncertainty_ml = 0.0;
+  double excess_ml = 0.0;  ///< titrant added as an excess before a back-titration
+  std::string excess_titrant;
+  std::string titrated_with;
+  bool back_titration = false;
+};
+
+/// One value of a determination with its inputs.
+struct Value {
+  double value = 0.0;
+  json detail;
+};
+
+class SeriesRun {
+ public:
+  SeriesRun(const Series& series, const std::string& text, SeriesInstruments& inst,
+            SeriesStores& stores, const SeriesOptions& options, SeriesObserver* observer,
+            const std::atomic<bool>* abort)
+      : series_(series),
+        text_(text),
+        inst_(inst),
+        stores_(stores),
+        options_(options),
+        observer_(observer),
+        abort_(abort) {
+    start_time_ = options.start_time.value_or(
+        std::chrono::time_point_cast<std::chrono::milliseconds>(std::chrono::system_clock::now()));
+    clock_start_s_ = inst.clock.now_s();
+  }
+
+  SeriesOutcome run() {
+    auto id = stores_.series.begin_series(series_.name, text_);
+    if (!id) {
+      outcome_.reason = id.error().describe();
+      return outcome_;
+    }
+    outcome_.series_id = *id;
+    std::optional<Failure> stop;
+    int samples_since_check = 0;
+    const Entry* repeating_check = nullptr;
+    std::size_t check_uses = 0;
+    for (const auto& entry : series_.entries)
+      if (entry.kind == EntryKind::check_standard && series_.check_standard_every > 0)
+        repeating_check = &entry;
+    for (const auto& entry : series_.entries) {
+      if (&entry == repeating_check)
+        continue;  // runs every N samples and at the end
+      if (aborted()) {
+        stop = Failure{Reach::series, "aborted by the operator"};
+        break;
+      }
+      stop = run_entry(entry, std::nullopt);
+      if (stop)
+        break;
+      if (entry.kind == EntryKind::sample && repeating_check &&
+          ++samples_since_check == series_.check_standard_every) {
+        samples_since_check = 0;
+        stop = run_entry(*repeating_check, check_uses++);
+        if (stop)
+          break;
+      }
+    }
+    if (!stop && repeating_check && samples_since_check > 0)
+      stop = run_entry(*repeating_check, check_uses++);
+    stop_burettes();
+    store::SeriesStatus status = store::SeriesStatus::completed;
+    std::string reason;
+    if (stop) {
+      status = aborted() ? store::SeriesStatus::aborted : store::SeriesStatus::stopped;
+      reason = stop->reason;
+    } else {
+      int flagged = 0;
+      for (const auto& e : outcome_.entries)
+        flagged += e.status != "done";
+      reason = std::to_string(outcome_.entries.size()) + " entries run, " +
+               std::to_string(flagged) + " flagged or failed";
+    }
+    if (auto r = stores_.series.finish_series(outcome_.series_id, status, reason); !r)
+      reason += "; the series' end could not be stored: " + r.error().describe();
+    outcome_.status = status;
+    outcome_.reason = reason;
+    say("series " + std::string(store::series_status_name(status)) + ": " + reason);
+    return outcome_;
+  }
+
+ private:
+  // ---- the entries -------------------------------------------------------
+
+  /// Runs one entry; a failure that stops the series is returned. `use`: for
+  /// a repeating check standard, which occurrence (it takes one position).
+  std::optional<Failure> run_entry(const Entry& entry, std::optional<std::size_t> use) {
+    EntryOutcome eo;
+    eo.kind = entry.kind;
+    eo.label = entry.id + (use ? " #" + std::to_string(*use + 1) : "");
+    if (observer_)
+      observer_->on_entry(entry_kind_name(entry.kind), eo.label);
+    say(std::string(entry_kind_name(entry.kind)) + " '" + eo.label + "'");
+
+    std::optional<method::Method> m;
+    if (!entry.method.empty()) {
+      auto loaded = method::load_method(stores_.methods, entry.method, entry.method_version);
+      if (!loaded)
+        return end_entry_early(
+            eo, entry, "cannot use method '" + entry.method + "': " + loaded.error().describe());
+      m = *loaded;
+    }
+    store::SeriesEntryRecord record;
+    record.series_id = outcome_.series_id;
+    record.index = static_cast<int>(outcome_.entries.size());
+    record.kind = entry_kind_name(entry.kind);
+    record.label = eo.label;
+    if (m) {
+      record.method_name = m->name;
+      record.method_version = m->version;
+    }
+    auto entry_id = stores_.series.begin_entry(record);
+    if (!entry_id)
+      return Failure{Reach::series,
+                     "cannot store entry '" + eo.label + "': " + entry_id.error().describe()};
+    eo.entry_id = *entry_id;
+    entry_ = &eo;
+    notes_.clear();
+
+    std::optional<Failure> stop;
+    switch (entry.kind) {
+      case EntryKind::calibration:
+        stop = run_calibration(entry);
+        break;
+      case EntryKind::burette_check:
+        stop = run_burette_check(entry);
+        break;
+      default:
+        stop = run_titrations(entry, *m, use);
+        break;
+    }
+    if (stop)
+      notes_.push_back(stop->reason);
+    if (eo.status.empty())
+      eo.status = stop ? "failed" : (flagged_ ? "flagged" : "done");
+    std::string note;
+    for (const auto& n : notes_)
+      note += (note.empty() ? "" : "\n") + n;
+    eo.note = note;
+    if (auto r = stores_.series.finish_entry(eo.entry_id, eo.status, note); !r && !stop)
+      stop = Failure{Reach::series,
+                     "cannot store the end of entry '" + eo.label + "': " + r.error().describe()};
+    if (observer_)
+      observer_->on_entry_end(eo.label, eo.status, note);
+    outcome_.entries.push_back(eo);
+    entry_ = nullptr;
+    flagged_ = false;
+    return stop;
+  }
+
+  std::optional<Failure> end_entry_early(EntryOutcome& eo, const Entry& entry,
+                                         const std::string& reason) {
+    store::SeriesEntryRecord record;
+    record.series_id = outcome_.series_id;
+    record.index = static_cast<int>(outcome_.entries.size());
+    record.kind = entry_kind_name(entry.kind);
+    record.label = eo.label;
+    record.method_name = entry.method;
+    if (auto id = stores_.series.begin_entry(record); id) {
+      eo.entry_id = *id;
+      (void)stores_.series.finish_entry(*id, "failed", reason);
+    }
+    eo.status = "failed";
+    eo.note = reason;
+    outcome_.entries.push_back(eo);
+    return Failure{Reach::series, reason};
+  }
+
+  /// Sample, check standard, blank, titer and conditioning entries.
+  std::optional<Failure> run_titrations(const Entry& entry, const method::Method& m,
+                                        std::optional<std::size_t> use) {
+    // Titers and calibrations must hold for results; a titer determination
+    // and a blank measure what later results need and use nominal values.
+    std::optional<method::Readiness> ready;
+    const bool needs_ready =
+        entry.kind == EntryKind::sample || entry.kind == EntryKind::check_standard;
+    if (needs_ready) {
+      auto r = method::check_ready(m, stores_.methods, now());
+      if (!r)
+        return Failure{Reach::series, "method '" + m.name + "' is not ready: " + r.error().message};
+      ready = *r;
+    } else if (m.indication.needs_calibration && entry.kind != EntryKind::conditioning) {
+      auto history = stores_.methods.calibration_history(m.indication.name);
+      if (!history)
+        return Failure{Reach::series, history.error().describe()};
+      const auto cal = method::latest_accepted_calibration(*history, m.indication.name, now());
+      if (!cal || !method::calibration_valid_at(*cal, now()))
+        return Failure{Reach::series, "no valid calibration of '" + m.indication.name + "'"};
+    }
+    if (entry.kind == EntryKind::check_standard && entry.expected_unit != m.result.unit)
+      return Failure{Reach::series, "check standard '" + entry.id + "' expects a value in " +
+                                        entry.expected_unit + " but method '" + m.name +
+                                        "' gives " + m.result.unit};
+
+    // Positions: a repeating check standard takes one per occurrence.
+    std::vector<int> positions = entry.positions;
+    int replicates = entry.replicates > 0 ? entry.replicates : m.replicates;
+    if (entry.kind == EntryKind::conditioning)
+      replicates = 1;
+    if (entry.kind == EntryKind::titer)
+      replicates = static_cast<int>(entry.positions.size());
+    if (use) {
+      const std::size_t first = *use * static_cast<std::size_t>(replicates);
+      if (first + static_cast<std::size_t>(replicates) > positions.size())
+        return Failure{Reach::series, "check standard '" + entry.id +
+                                          "' has no positions left for its occurrence " +
+                                          std::to_string(*use + 1)};
+      positions = std::vector<int>(positions.begin() + static_cast<long>(first),
+                                   positions.begin() + static_cast<long>(first) + replicates);
+    }
+    std::size_t next_position = 0;
+    auto portion_for = [&](std::size_t i) {
+      if (entry.portions.empty())
+        return Portion{};
+      return entry.portions.size() == 1 ? entry.portions.front()
+                                        : entry.portions[std::min(i, entry.portions.size() - 1)];
+    };
+
+    std::vector<double> values;
+    std::vector<double> endpoint_uncertainties;
+    int replicate_no = 0;
+    int planned = replicates;
+    bool extra_asked = false;
+    int repeats_left_for_slot = 0;
+    for (int slot = 0; slot < planned; ++slot) {
+      repeats_left_for_slot = 1;
+      while (true) {
+        if (aborted())
+          return Failure{Reach::series, "aborted by the operator"};
+        if (next_position >= positions.size()) {
+          flag("no spare position left for determination " + std::to_string(slot + 1));
+          break;
+        }
+        const std::size_t portion_index = next_position;
+        const int position = positions[next_position++];
+        ++replicate_no;
+        Measured got;
+        got.position = position;
+        auto failure = measure(entry, m, position, portion_for(portion_index), got, ready);
+        store::DeterminationRecord d;
+        d.entry_id = entry_->entry_id;
+        d.replicate = replicate_no;
+        d.position = position;
+        d.run_id = got.run_id;
+        d.second_run_id = got.second_run_id;
+        if (failure && failure->reach == Reach::series) {
+          d.counted = false;
+          d.flags = "failed";
+          d.detail_json = json{{"reason", failure->reason}}.dump();
+          (void)store_determination(d);
+          return failure;
+        }
+        std::optional<Value> value;
+        if (!failure) {
+          auto v = compute_value(entry, m, got, portion_for(portion_index), ready);
+          if (!v)
+            failure = Failure{Reach::sample, v.error().message};
+          else
+            value = *v;
+        }
+        if (failure) {
+          d.counted = false;
+          d.flags = failure->reach == Reach::determination && repeats_left_for_slot > 0 ? "repeated"
+                                                                                        : "failed";
+          d.detail_json = json{{"reason", failure->reason}}.dump();
+          if (auto f = store_determination(d))
+            return f;
+          notes_.push_back("determination " + std::to_string(replicate_no) + " (position " +
+                           std::to_string(position) + "): " + failure->reason);
+          if (failure->reach == Reach::determination && repeats_left_for_slot-- > 0)
+            continue;  // repeated once on the next spare position
+          flag("determination " + std::to_string(replicate_no) + " left out: " + failure->reason);
+          break;
+        }
+        d.value = value->value;
+        d.unit = unit_of(entry, m);
+        d.detail_json = value->detail.dump();
+        if (auto f = store_determination(d))
+          return f;
+        values.push_back(value->value);
+        endpoint_uncertainties.push_back(got.endpoint_uncertainty_ml);
+        break;
+      }
+      // Duplicates that disagree get one extra replicate.
+      if (slot + 1 == planned && !extra_asked && entry.kind == EntryKind::sample &&
+          values.size() >= 2 && m.result.largest_replicate_difference) {
+        const auto [lo, hi] = std::minmax_element(values.begin(), values.end());
+        const double mean =
+            std::accumulate(values.begin(), values.end(), 0.0) / static_cast<double>(values.size());
+        const double spread =
+            m.result.replicate_difference_relative ? (*hi - *lo) / mean * 100.0 : (*hi - *lo);
+        if (spread > *m.result.largest_replicate_difference) {
+          extra_asked = true;
+          ++planned;
+          notes_.push_back("replicates differ by " + fixed(spread, 3) +
+                           (m.result.replicate_difference_relative ? " %" : " " + m.result.unit) +
+                           ", above the method's " +
+                           fixed(*m.result.largest_replicate_difference, 3) +
+                           ": one extra replicate");
+        }
+      }
+    }
+    entry_->values = values;
+    entry_->unit = unit_of(entry, m);
+    return conclude(entry, m, values, endpoint_uncertainties, ready);
+  }
+
+  /// The entry's result from its counted values: statistics, limits, and
+  /// what the later entries use (blank, titer); a failure that stops the
+  /// series (refused titer, failed check standard).
+  std::optional<Failure> conclude(const Entry& entry, const method::Method& m,
+                                  const std::vector<double>& values,
+                                  const std::vector<double>& endpoint_uncertainties,
+                                  const std::optional<method::Readiness>& ready) {
+    if (entry.kind == EntryKind::conditioning)
+      return std::nullopt;
+    if (values.empty()) {
+      entry_->status = "failed";
+      if (entry.kind == EntryKind::titer || entry.kind == EntryKind::check_standard ||
+          entry.kind == EntryKind::blank)
+        return Failure{Reach::series, std::string(entry_kind_name(entry.kind)) + " '" + entry.id +
+                                          "' gave no value"};
+      return std::nullopt;
+    }
+    const double mean =
+        std::accumulate(values.begin(), values.end(), 0.0) / static_cast<double>(values.size());
+    entry_->mean = mean;
+    store::EntryResultRecord r;
+    r.entry_id = entry_->entry_id;
+    r.value = mean;
+    r.unit = unit_of(entry, m);
+    r.count = static_cast<int>(values.size());
+    json detail;
+    detail["values"] = values;
+    if (auto stats = controller::replicate_statistics(values); stats) {
+      r.sd = stats->sd;
+      r.rsd_percent = stats->rsd_percent;
+      if (stats->outlier) {
+        detail["outlier_test"] = {{"name", stats->outlier->name},
+                                  {"statistic", stats->outlier->statistic},
+                                  {"critical_5_percent", stats->outlier->critical_5_percent},
+                                  {"critical_1_percent", stats->outlier->critical_1_percent},
+                                  {"verdict", stats->outlier->verdict}};
+        if (stats->outlier->verdict != "none")
+          flag("replicate " + std::to_string(stats->outlier->suspect_index + 1) + " is a " +
+               stats->outlier->verdict + " by the " + stats->outlier->name);
+      }
+    }
+    std::optional<Failure> stop;
+    switch (entry.kind) {
+      case EntryKind::blank:
+        r.name = "blank volume";
+        blank_ml_[m.name] = mean;
+        blank_sd_ml_[m.name] = r.sd;
+        break;
+      case EntryKind::titer: {
+        r.name = "titer concentration";
+        auto stored =
+            method::record_titer(stores_.methods, entry.titrant, values, now(), options_.titer);
+        if (!stored) {
+          stop = Failure{Reach::series, "cannot store the titer of '" + entry.titrant +
+                                            "': " + stored.error().describe()};
+        } else {
+          detail["titer_id"] = stored->id;
+          detail["accepted"] = stored->accepted;
+          detail["expires_utc"] = stored->expires_utc;
+          if (!stored->accepted) {
+            flag("titer refused: " + stored->note);
+            stop = Failure{Reach::series, "the titer of '" + entry.titrant + "' was refused (" +
+                                              stored->note + ")"};
+          }
+        }
+        break;
+      }
+      case EntryKind::check_standard: {
+        r.name = "check standard";
+        const double deviation = (mean - entry.expected_value) / entry.expected_value * 100.0;
+        detail["expected"] = entry.expected_value;
+        detail["deviation_percent"] = deviation;
+        detail["tolerance_percent"] = entry.tolerance_percent;
+        if (std::abs(deviation) > entry.tolerance_percent) {
+          flag("check standard off by " + fixed(deviation, 2) + " % (tolerance " +
+               fixed(entry.tolerance_percent, 2) + " %)");
+          stop = Failure{Reach::series, "check standard '" + entry.id +
+                                            "' failed: " + fixed(mean, 4) + " " + r.unit +
+                                            " against " + fixed(entry.expected_value, 4) +
+                                            " expected (" + fixed(deviation, 2) + " %, tolerance " +
+                                            fixed(entry.tolerance_percent, 2) + " %)"};
+        }
+        break;
+      }
+      default: {
+        r.name = m.result.analyte;
+        if (m.result.lowest && mean < *m.result.lowest)
+          flag("below the method's lowest " + fixed(*m.result.lowest, 4) + " " + r.unit);
+        if (m.result.highest && mean > *m.result.highest)
+          flag("above the method's highest " + fixed(*m.result.highest, 4) + " " + r.unit);
+        if (values.size() >= 2 && m.result.largest_replicate_difference) {
+          const auto [lo, hi] = std::minmax_element(values.begin(), values.end());
+          const double spread =
+              m.result.replicate_difference_relative ? (*hi - *lo) / mean * 100.0 : (*hi - *lo);
+          if (spread > *m.result.largest_replicate_difference)
+            flag("replicates still differ by " + fixed(spread, 3) +
+                 (m.result.replicate_difference_relative ? " %" : " " + r.unit));
+        }
+        if (values.size() < static_cast<std::size_t>(std::max(1, m.replicates)))
+          flag(std::to_string(values.size()) + " of " + std::to_string(m.replicates) +
+               " replicates gave a value");
+        if (auto budget = uncertainty(entry, m, mean, values, endpoint_uncertainties, ready);
+            budget) {
+          json rows = json::array();
+          for (const auto& c : budget->components)
+            rows.push_back({{"name", c.name},
+                            {"value", c.value},
+                            {"standard_uncertainty", c.standard_uncertainty},
+                            {"relative_uncertainty", c.relative_uncertainty},
+                            {"share_percent", c.share_percent},
+                            {"basis", c.basis}});
+          detail["uncertainty"] = {{"components", rows},
+                                   {"combined_standard", budget->combined_standard},
+                                   {"coverage_factor", budget->coverage_factor},
+                                   {"expanded", budget->expanded}};
+        }
+        break;
+      }
+    }
+    r.flags = flags_text();
+    r.detail_json = detail.dump();
+    if (auto stored = stores_.series.add_entry_result(r); !stored && !stop)
+      stop = Failure{Reach::series, stored.error().describe()};
+    return stop;
+  }
+
+  /// GUM budget of a sample's mean: burette volume, endpoint, titer,
+  /// repeatability, sample size (relative uncertainties in quadrature).
+  Result<controller::UncertaintyBudget> uncertainty(
+      const Entry& entry, const method::Method& m, double mean, const std::vector<double>& values,
+      const std::vector<double>& endpoint_uncertainties,
+      const std::optional<method::Readiness>& ready) {
+    std::vector<controller::UncertaintyComponent> c;
+    const double volume = last_endpoint_ml_ > 0.0 ? last_endpoint_ml_ : 1.0;
+    c.push_back({"titrant volume (burette tolerance)", volume,
+                 volume * options_.burette_relative_uncertainty,
+                 "ISO 8655-3 systematic limit, rectangular: a/√3"});
+    double u_ep = 0.0;
+    for (double u : endpoint_uncertainties)
+      u_ep = std::max(u_ep, u);
+    if (u_ep > 0.0)
+      c.push_back(
+          {"endpoint (detection)", volume, u_ep, "standard uncertainty from the endpoint method"});
+    if (ready && !ready->titers.empty()) {
+      const auto& t = ready->titers.front();
+      auto history = stores_.methods.titer_history(t.titrant);
+      double rsd = 0.0;
+      int n = 1;
+      if (history)
+        for (const auto& h : *history)
+          if (h.id == t.titer_id) {
+            rsd = h.rsd_percent;
+            n = std::max<int>(1, static_cast<int>(h.determinations_mol_per_l.size()));
+          }
+      if (rsd > 0.0)
+        c.push_back({"titer", t.conc_mol_per_l,
+                     t.conc_mol_per_l * rsd / 100.0 / std::sqrt(static_cast<double>(n)),
+                     "standard deviation of the mean of " + std::to_string(n) + " determinations"});
+    }
+    if (values.size() >= 2) {
+      auto stats = controller::replicate_statistics(values);
+      if (stats && stats->rsd_percent > 0.0)
+        c.push_back({"repeatability", 1.0,
+                     stats->rsd_percent / 100.0 / std::sqrt(static_cast<double>(values.size())),
+                     "relative standard deviation of the mean of " + std::to_string(values.size()) +
+                         " replicates"});
+    }
+    const Portion p = entry.portions.empty() ? Portion{} : entry.portions.front();
+    if (p.mass_g > 0.0)
+      c.push_back({"sample mass", p.mass_g, 0.0001 / std::sqrt(3.0) * std::sqrt(2.0),
+                   "balance readability 0.1 mg, two readings, rectangular"});
+    else if (p.aliquot_ml > 0.0)
+      c.push_back({"aliquot volume", p.aliquot_ml, p.aliquot_ml * 0.0008 / std::sqrt(6.0),
+                   "class A pipette tolerance ±0.08 %, triangular (common practice)"});
+    (void)m;
+    return controller::product_quotient_budget(mean, c);
+  }
+
+  // ---- one determination -------------------------------------------------
+
+  /// Brings the vessel, runs the method's steps, takes it away.
+  std::optional<Failure> measure(const Entry& entry, const method::Method& m, int position,
+                                 const Portion& portion, Measured& got,
+                                 const std::optional<method::Readiness>& ready) {
+    if (auto f = bring_vessel(position))
+      return f;
+    auto failure = run_steps(entry, m, portion, got, ready);
+    if (auto f = take_vessel_away(); f && (!failure || failure->reach != Reach::series))
+      return f;
+    return failure;
+  }
+
+  std::optional<Failure> bring_vessel(int position) {
+    if (!inst_.changer)
+      return std::nullopt;
+    if (auto r = inst_.changer->move_to(position); !r)
+      return device_failure("sample changer, moving to position " + std::to_string(position),
+                            r.error());
+    if (auto r = inst_.changer->lower(); !r)
+      return device_failure("sample changer, lowering at position " + std::to_string(position),
+                            r.error());
+    if (inst_.stirrer)
+      if (auto r = inst_.stirrer->set_speed(options_.stirrer_rpm); !r)
+        return device_failure("stirrer", r.error());
+    return std::nullopt;
+  }
+
+  std::optional<Failure> take_vessel_away() {
+    if (inst_.stirrer)
+      (void)inst_.stirrer->stop();
+    if (!inst_.changer)
+      return std::nullopt;
+    if (auto r = inst_.changer->raise(); !r)
+      return device_failure("sample changer, raising the head", r.error());
+    if (options_.rinse_s > 0.0)
+      if (auto r = inst_.changer->rinse(options_.rinse_s); !r)
+        return device_failure("sample changer, rinsing", r.error());
+    return std::nullopt;
+  }
+
+  std::optional<Failure> run_steps(const Entry& entry, const method::Method& m,
+                                   const Portion& portion, Measured& got,
+                                   const std::optional<method::Readiness>& ready) {
+    std::optional<controller::RunOutcome> last_run;
+    for (std::size_t i = 0; i < m.steps.size(); ++i) {
+      if (aborted())
+        return Failure{Reach::series, "aborted by the operator"};
+      const auto& step = m.steps[i];
+      std::optional<Failure> f;
+      if (const auto* s = std::get_if<method::AddReagentStep>(&step)) {
+        f = add_reagent(m, *s);
+      } else if (const auto* s = std::get_if<method::AdjustPhStep>(&step)) {
+        f = adjust_ph(m, *s);
+      } else if (const auto* s = std::get_if<method::WaitStep>(&step)) {
+        if (inst_.stirrer)
+          if (auto r = inst_.stirrer->set_speed(s->stirrer_rpm); !r)
+            return device_failure("stirrer", r.error());
+        inst_.clock.sleep_for(drivers::from_seconds(s->duration_s));
+        if (inst_.stirrer && s->stirrer_rpm != options_.stirrer_rpm)
+          if (auto r = inst_.stirrer->set_speed(options_.stirrer_rpm); !r)
+            return device_failure("stirrer", r.error());
+      } else if (const auto* s = std::get_if<method::AddTitrantStep>(&step)) {
+        f = add_titrant(m, *s);
+        got.excess_ml = s->volume_ml;
+        got.excess_titrant = s->titrant;
+      } else if (const auto* s = std::get_if<method::TitrateStep>(&step)) {
+        f = titrate(entry, m, *s, i, portion, got, ready, last_run);
+        got.back_titration = false;
+      } else if (const auto* s = std::get_if<method::BackTitrateStep>(&step)) {
+        f = titrate(entry, m, *s, i, portion, got, ready, last_run);
+        got.back_titration = true;
+      } else if (const auto* s = std::get_if<method::EvaluateStep>(&step)) {
+        // The titration before it evaluated with this step's method; here
+        // the endpoint is held against the expected range.
+        if (!last_run || !last_run->endpoint)
+          return Failure{Reach::determination, "no endpoint to evaluate"};
+        const double v = last_run->endpoint->volume_ml;
+        const bool range_set = s->expected_to_ml > s->expected_from_ml;
+        if (range_set && (v < s->expected_from_ml || v > s->expected_to_ml) &&
+            entry.kind != EntryKind::blank)
+          return Failure{Reach::determination, "endpoint " + fixed(v, 4) +
+                                                   " mL outside the expected " +
+                                                   fixed(s->expected_from_ml, 3) + " to " +
+                                                   fixed(s->expected_to_ml, 3) + " mL"};
+      } else if (std::get_if<method::RinseStep>(&step)) {
+        // Rinsing is done by the sample changer when the vessel leaves.
+      }
+      if (f)
+        return f;
+    }
+    if (!last_run || !last_run->endpoint)
+      return Failure{Reach::determination, "the method measured no endpoint"};
+    return std::nullopt;
+  }
+
+  const method::TitrantUse* titrant_use(const method::Method& m, const std::string& name) {
+    for (const auto& t : m.titrants)
+      if (t.name == name)
+        return &t;
+    return nullptr;
+  }
+
+  drivers::BuretteClient* burette_for(const method::Method& m, const std::string& titrant) {
+    const auto* use = titrant_use(m, titrant);
+    if (!use)
+      return nullptr;
+    auto it = inst_.burettes.find(use->burette);
+    return it == inst_.burettes.end() ? nullptr : it->second;
+  }
+
+  std::optional<Failure> add_reagent(const method::Method& m, const method::AddReagentStep& s) {
+    auto pump = pump_for(m, s.reagent);
+    if (!pump)
+      return Failure{Reach::series, "no doser pump set up for reagent '" + s.reagent + "'"};
+    auto r = pump->doser->add(pump->reagent, s.volume_ml, options_.reagent_rate_ml_per_min);
+    if (!r)
+      return device_failure("doser, adding " + s.reagent, r.error());
+    return std::nullopt;
+  }
+
+  std::optional<Pump> pump_for(const method::Method& m, const std::string& reagent) {
+    for (const auto& r : m.reagents) {
+      if (r.name != reagent)
+        continue;
+      auto it = inst_.pumps.find(r.doser);
+      if (it != inst_.pumps.end() && it->second.doser)
+        return it->second;
+    }
+    return std::nullopt;
+  }
+
+  Result<double> read_ph() {
+    auto reading = inst_.sensor.read();
+    if (!reading)
+      return reading.error();
+    if (!reading->ph)
+      return make_error(ErrorKind::invalid_input,
+                        "the meter reports no pH: adjusting the pH needs a meter with a pH input");
+    return *reading->ph;
+  }
+
+  /// Doses acid or base until the pH is within the tolerance: the first
+  /// dose is small; each later one is sized from the pH change per mL the
+  /// doses so far caused (a secant step, 80 % of the way, bounded).
+  std::optional<Failure> adjust_ph(const method::Method& m, const method::AdjustPhStep& s) {
+    auto ph = read_ph();
+    if (!ph)
+      return device_failure("pH reading", ph.error());
+    double total_ml = 0.0;
+    double slope_per_ml = 0.0;  // |pH change| per mL, from the last dose
+    while (std::abs(*ph - s.target_ph) > s.tolerance_ph) {
+      const bool raise = *ph < s.target_ph;
+      const std::string& reagent = raise ? s.base : s.acid;
+      if (reagent.empty())
+        return Failure{Reach::sample, "pH " + fixed(*ph, 2) + " needs " +
+                                          (raise ? std::string("base") : std::string("acid")) +
+                                          " and the method names none"};
+      auto pump = pump_for(m, reagent);
+      if (!pump)
+        return Failure{Reach::series, "no doser pump set up for reagent '" + reagent + "'"};
+      double dose = options_.ph_first_dose_ml;
+      if (slope_per_ml > 0.0)
+        dose = 0.8 * std::abs(s.target_ph - *ph) / slope_per_ml;
+      dose = std::clamp(dose, options_.ph_smallest_dose_ml, options_.ph_largest_dose_ml);
+      if (total_ml + dose > s.largest_total_volume_ml)
+        return Failure{Reach::sample, "pH " + fixed(*ph, 2) + " not brought to " +
+                                          fixed(s.target_ph, 2) + " within " +
+                                          fixed(s.largest_total_volume_ml, 2) +
+                                          " mL of acid and base"};
+      auto added = pump->doser->add(pump->reagent, dose, options_.reagent_rate_ml_per_min);
+      if (!added)
+        return device_failure("doser, adding " + reagent, added.error());
+      total_ml += dose;
+      inst_.clock.sleep_for(drivers::from_seconds(options_.ph_wait_s));
+      auto now_ph = read_ph();
+      if (!now_ph)
+        return device_failure("pH reading", now_ph.error());
+      slope_per_ml = std::abs(*now_ph - *ph) / dose;
+      ph = now_ph;
+    }
+    say("pH " + fixed(*ph, 2) + " after " + fixed(total_ml, 3) + " mL of acid or base");
+    return std::nullopt;
+  }
+
+  std::optional<Failure> add_titrant(const method::Method& m, const method::AddTitrantStep& s) {
+    auto* burette = burette_for(m, s.titrant);
+    if (!burette)
+      return Failure{Reach::series, "no burette set up for titrant '" + s.titrant + "'"};
+    double left = s.volume_ml;
+    const double largest = burette->info().max_dose_ml > 0.0 ? burette->info().max_dose_ml : left;
+    while (left > 1e-9) {
+      auto status = burette->status();
+      if (!status)
+        return device_failure("burette for " + s.titrant, status.error());
+      const double dose = std::min(left, largest);
+      if (status->cylinder_content_ml + 1e-9 < dose) {
+        auto filled = burette->fill(options_.titrant_add_rate_ml_per_min * 3.0);
+        if (!filled)
+          return device_failure("burette for " + s.titrant + ", filling", filled.error());
+        if (filled->cylinder_content_ml + 1e-9 < dose)
+          return Failure{Reach::series, "the reservoir of '" + s.titrant + "' is empty"};
+      }
+      auto dosed = burette->dose(dose, options_.titrant_add_rate_ml_per_min);
+      if (!dosed)
+        return device_failure("burette for " + s.titrant + ", adding the excess", dosed.error());
+      left -= dose;
+    }
+    return std::nullopt;
+  }
+
+  std::optional<Failure> titrate(const Entry& entry, const method::Method& m,
+                                 const method::TitrateStep& s, std::size_t step_index,
+                                 const Portion& portion, Measured& got,
+                                 const std::optional<method::Readiness>& ready,
+                                 std::optional<controller::RunOutcome>& last_run) {
+    auto* burette = burette_for(m, s.titrant);
+    if (!burette)
+      return Failure{Reach::series, "no burette set up for titrant '" + s.titrant + "'"};
+    auto plan = controller::dosing_plan_from_json(method::dosing_plan_json(s));
+    if (!plan)
+      return Failure{Reach::series, "method '" + m.name + "': " + plan.error().message};
+    controller::TitrationMethod tm;
+    tm.name = m.name + " (version " + std::to_string(m.version) + ")";
+    tm.dosing = *plan;
+    tm.initial_volume_ml = s.initial_volume_ml;
+    tm.max_volume_ml = s.largest_volume_ml;
+    tm.volume_past_endpoint_ml = s.volume_past_endpoint_ml;
+    tm.time_limit_s = s.time_limit_s;
+    tm.settling.drift_limit_per_min = s.drift_limit_per_min;
+    tm.settling.window_s = s.settling_window_s;
+    tm.settling.min_wait_s = s.shortest_wait_s;
+    tm.settling.max_wait_s = s.longest_wait_s;
+    // The evaluate step after the titration names the endpoint method.
+    for (std::size_t j = step_index + 1; j < m.steps.size(); ++j) {
+      if (const auto* e = std::get_if<method::EvaluateStep>(&m.steps[j])) {
+        tm.endpoint_method = e->endpoint_method;
+        tm.endpoint_options = e->options;
+        break;
+      }
+      if (std::holds_alternative<method::TitrateStep>(m.steps[j]) ||
+          std::holds_alternative<method::BackTitrateStep>(m.steps[j]))
+        break;
+    }
+    controller::SampleDescription sample;
+    sample.sample_id = entry.id;
+    sample.series = series_.name;
+    sample.sample_volume_ml =
+        portion.aliquot_ml > 0.0 ? portion.aliquot_ml : options_.dissolved_in_ml;
+    sample.metal = m.result.analyte;
+    sample.metal_molar_mass_g_per_mol =
+        m.result.molar_mass_g_per_mol > 0.0 ? m.result.molar_mass_g_per_mol : 1.0;
+    sample.metal_per_titrant = m.result.analyte_per_titrant;
+    sample.titrant_name = s.titrant;
+    sample.titrant_conc_mol_per_l = nominal_conc(s.titrant);
+    if (ready)
+      for (const auto& t : ready->titers)
+        if (t.titrant == s.titrant)
+          sample.titrant_conc_mol_per_l = t.conc_mol_per_l;
+    controller::Instruments instruments{*burette, inst_.sensor, inst_.clock};
+    controller::RunControl control;
+    auto outcome =
+        controller::run_titration(instruments, stores_.runs, sample, tm, observer_, &control);
+    if (outcome.run_id > 0) {
+      entry_->run_ids.push_back(outcome.run_id);
+      (void)stores_.methods.record_method_use(outcome.run_id, m.name, m.version);
+      if (got.run_id == 0)
+        got.run_id = outcome.run_id;
+      else
+        got.second_run_id = outcome.run_id;
+    }
+    if (!outcome.burette_stopped)
+      outcome_.burettes_stopped = false;
+    last_run = outcome;
+    got.titrated_with = s.titrant;
+    if (outcome.status == store::RunStatus::completed && outcome.endpoint) {
+      got.endpoint_ml = outcome.endpoint->volume_ml;
+      got.endpoint_uncertainty_ml = outcome.endpoint->uncertainty_ml;
+      last_endpoint_ml_ = got.endpoint_ml;
+      return std::nullopt;
+    }
+    // No endpoint is this vessel's problem; anything else (a device, an
+    // empty reservoir, the store) is the series'.
+    if (outcome.reason.rfind("no endpoint found", 0) == 0)
+      return Failure{Reach::determination, outcome.reason};
+    return Failure{Reach::series, "run " + std::to_string(outcome.run_id) + " " +
+                                      store::run_status_name(outcome.status) + ": " +
+                                      outcome.reason};
+  }
+
+  double nominal_conc(const std::string& titrant) {
+    auto t = stores_.methods.load_titrant(titrant);
+    return t ? t->nominal_conc_mol_per_l : 0.0;
+  }
+
+  /// Titer factor (found / nominal) of a titrant for a sample's result; 1 for
+  /// entries that measure with nominal values.
+  double titer_factor(const std::string& titrant, const std::optional<method::Readiness>& ready) {
+    if (!ready)
+      return 1.0;
+    const double nominal = nominal_conc(titrant);
+    for (const auto& t : ready->titers)
+      if (t.titrant == titrant && nominal > 0.0)
+        return t.conc_mol_per_l / nominal;
+    return 1.0;
+  }
+
+  std::string unit_of(const Entry& entry, const method::Method& m) const {
+    switch (entry.kind) {
+      case EntryKind::blank:
+      case EntryKind::conditioning:
+        return "mL";
+      case EntryKind::titer:
+        return "mol/L";
+      default:
+        return m.result.unit;
+    }
+  }
+
+  /// The value of one determination: a blank volume, a titer concentration,
+  /// or the sample's content in the method's unit.
+  Result<Value> compute_value(const Entry& entry, const method::Method& m, const Measured& got,
+                              const Portion& portion,
+                              const std::optional<method::Readiness>& ready) {
+    Value v;
+    const double blank = blank_ml_.count(m.name) ? blank_ml_.at(m.name) : 0.0;
+    v.detail = {{"endpoint_ml", got.endpoint_ml},
+                {"endpoint_uncertainty_ml", got.endpoint_uncertainty_ml},
+                {"titrant", got.titrated_with},
+                {"position", got.position}};
+    if (got.back_titration) {
+      v.detail["excess_ml"] = got.excess_ml;
+      v.detail["excess_titrant"] = got.excess_titrant;
+    }
+    // Volume-equivalent of the first titrant that reacted with the vessel's
+    // analyte (direct: the endpoint; back: the excess less what was titrated back).
+    const std::string first = got.back_titration ? got.excess_titrant : got.titrated_with;
+    const double c1 = nominal_conc(first);
+    if (c1 <= 0.0)
+      return make_error(ErrorKind::invalid_input, "titrant '" + first + "' is not stored");
+    const double t1 = titer_factor(first, ready);
+    double reacted_ml = got.endpoint_ml;
+    if (got.back_titration) {
+      const double c2 = nominal_conc(got.titrated_with);
+      if (c2 <= 0.0)
+        return make_error(ErrorKind::invalid_input,
+                          "titrant '" + got.titrated_with + "' is not stored");
+      const double t2 = titer_factor(got.titrated_with, ready);
+      reacted_ml = got.excess_ml - got.endpoint_ml * c2 * t2 / (c1 * t1);
+      v.detail["back_titrant_titer"] = t2;
+    }
+    switch (entry.kind) {
+      case EntryKind::blank:
+      case EntryKind::conditioning:
+        v.value = reacted_ml;
+        return v;
+      case EntryKind::titer: {
+        controller::TiterDetermination d;
+        d.standard_mass_g = portion.mass_g;
+        d.standard_purity_percent = entry.standard_purity_percent;
+        d.standard_molar_mass_g_per_mol = entry.standard_molar_mass_g_per_mol;
+        d.titrant_per_standard = entry.titrant_per_standard;
+        d.endpoint_ml = reacted_ml;
+        d.blank_ml = blank;
+        d.nominal_conc_mol_per_l = c1;
+        auto titer = controller::titer_from_standard(d);
+        if (!titer)
+          return titer.error();
+        v.value = titer->conc_mol_per_l;
+        v.detail["mass_g"] = portion.mass_g;
+        v.detail["blank_ml"] = blank;
+        v.detail["titer"] = titer->titer;
+        return v;
+      }
+      default:
+        break;
+    }
+    controller::TitrantVolume tv;
+    tv.nominal_conc_mol_per_l = c1;
+    tv.titer = t1;
+    tv.volume_ml = reacted_ml;
+    tv.blank_ml = blank;
+    tv.analyte_per_titrant = m.result.analyte_per_titrant;
+    auto amount = controller::analyte_amount_mol(tv);
+    if (!amount)
+      return amount.error();
+    if (*amount <= 0.0)
+      return make_error(ErrorKind::invalid_input,
+                        "no analyte above the blank (" + fixed(reacted_ml, 4) +
+                            " mL against a blank of " + fixed(blank, 4) + " mL)");
+    controller::SampleSize size;
+    size.aliquot_ml = portion.aliquot_ml;
+    size.mass_g = portion.mass_g;
+    size.dilution_factor = entry.dilution_factor;
+    size.density_g_per_ml = entry.density_g_per_ml;
+    auto unit = controller::result_unit_from_name(m.result.unit);
+    if (!unit)
+      return make_error(ErrorKind::invalid_input, "unknown result unit '" + m.result.unit + "'");
+    auto conc = controller::concentration(*amount, size, *unit, m.result.molar_mass_g_per_mol);
+    if (!conc)
+      return conc.error();
+    v.value = *conc;
+    v.detail["reacted_ml"] = reacted_ml;
+    v.detail["blank_ml"] = blank;
+    v.detail["titer"] = t1;
+    v.detail["amount_mol"] = *amount;
+    v.detail["aliquot_ml"] = portion.aliquot_ml;
+    v.detail["mass_g"] = portion.mass_g;
+    v.detail["dilution_factor"] = entry.dilution_factor;
+    return v;
+  }
+
+  // ---- calibration and burette check ------------------------------------
+
+  /// A settled potential: read every second until the drift over the last
+  /// 10 s is within the limit, or until the longest wait.
+  Result<drivers::PotentialReading> settled_reading(double drift_limit_mv_per_min,
+                                                    double longest_wait_s) {
+    std::vector<double> times;
+    std::vector<double> values;
+    const double start = inst_.clock.now_s();
+    while (true) {
+      auto r = inst_.sensor.read();
+      if (!r)
+        return r.error();
+      const double t = inst_.clock.now_s() - start;
+      times.push_back(t);
+      values.push_back(r->potential_mv);
+      while (!times.empty() && times.back() - times.front() > 10.0) {
+        times.erase(times.begin());
+        values.erase(values.begin());
+      }
+      if (t >= 10.0 && std::abs(controller::least_squares_slope_per_min(times, values)) <=
+                           drift_limit_mv_per_min) {
+        drivers::PotentialReading out = *r;
+        out.potential_mv = std::accumulate(values.end() - 3, values.end(), 0.0) / 3.0;
+        return out;
+      }
+      if (t >= longest_wait_s)
+        return make_error(
+            ErrorKind::timeout,
+            "the potential did not settle within " + fixed(longest_wait_s, 0) + " s (drift " +
+                fixed(controller::least_squares_slope_per_min(times, values), 2) + " mV/min)");
+      inst_.clock.sleep_for(drivers::from_seconds(1.0));
+    }
+  }
+
+  std::optional<Failure> run_calibration(const Entry& entry) {
+    std::vector<controller::CalibrationStandard> standards;
+    double temperature = 0.0;
+    for (std::size_t i = 0; i < entry.positions.size(); ++i) {
+      if (aborted())
+        return Failure{Reach::series, "aborted by the operator"};
+      if (auto f = bring_vessel(entry.positions[i]))
+        return f;
+      inst_.clock.sleep_for(drivers::from_seconds(5.0));
+      auto reading = settled_reading(entry.settle_limit_mv_per_min, entry.longest_wait_s);
+      if (auto f = take_vessel_away())
+        return f;
+      if (!reading)
+        return Failure{Reach::series, "calibration standard " + std::to_string(i + 1) +
+                                          " (position " + std::to_string(entry.positions[i]) +
+                                          "): " + reading.error().describe()};
+      standards.push_back({entry.standard_conc_mol_per_l[i], reading->potential_mv});
+      temperature += reading->temperature_c;
+      store::DeterminationRecord d;
+      d.entry_id = entry_->entry_id;
+      d.replicate = static_cast<int>(i + 1);
+      d.position = entry.positions[i];
+      d.value = reading->potential_mv;
+      d.unit = "mV";
+      d.detail_json = json{{"conc_mol_per_l", entry.standard_conc_mol_per_l[i]},
+                           {"temperature_c", reading->temperature_c}}
+                          .dump();
+      if (auto f = store_determination(d))
+        return f;
+    }
+    controller::CalibrationOptions options = options_.calibration;
+    options.temperature_c = temperature / static_cast<double>(standards.size());
+    options.charge = entry.charge;
+    auto cal = controller::calibrate_electrode(standards, options);
+    if (!cal)
+      return Failure{Reach::series,
+                     "calibration of '" + entry.electrode + "': " + cal.error().message};
+    store::CalibrationRecord rec;
+    rec.electrode = entry.electrode;
+    rec.slope_mv_per_decade = cal->slope_mv_per_decade;
+    rec.e0_mv = cal->e0_mv;
+    rec.temperature_c = cal->temperature_c;
+    rec.accepted = cal->accepted;
+    rec.measured_utc = method::format_utc(now());
+    rec.expires_utc =
+        method::format_utc(now() + std::chrono::milliseconds(static_cast<std::int64_t>(
+                                       options.valid_for_hours * 3600.0 * 1000.0)));
+    if (auto stored = stores_.methods.add_calibration(rec); !stored)
+      return Failure{Reach::series, stored.error().describe()};
+    store::EntryResultRecord r;
+    r.entry_id = entry_->entry_id;
+    r.name = "slope";
+    r.value = cal->slope_mv_per_decade;
+    r.unit = "mV/decade";
+    r.count = cal->standards;
+    r.sd = cal->slope_uncertainty_mv_per_decade;
+    r.rsd_percent =
+        cal->slope_mv_per_decade != 0.0
+            ? std::abs(cal->slope_uncertainty_mv_per_decade / cal->slope_mv_per_decade) * 100.0
+            : 0.0;
+    r.detail_json = json{{"e0_mv", cal->e0_mv},
+                         {"slope_percent_of_nernst", cal->slope_percent_of_nernst},
+                         {"nernst_slope_mv_per_decade", cal->nernst_slope_mv_per_decade},
+                         {"residual_sd_mv", cal->residual_sd_mv},
+                         {"temperature_c", cal->temperature_c},
+                         {"accepted", cal->accepted},
+                         {"expires_utc", rec.expires_utc}}
+                        .dump();
+    entry_->values = {cal->slope_mv_per_decade};
+    entry_->mean = cal->slope_mv_per_decade;
+    entry_->unit = "mV/decade";
+    if (!cal->accepted) {
+      flag("calibration refused: " + cal->reason);
+      r.flags = flags_text();
+    }
+    if (auto stored = stores_.series.add_entry_result(r); !stored)
+      return Failure{Reach::series, stored.error().describe()};
+    say("calibration of '" + entry.electrode + "': slope " + fixed(cal->slope_mv_per_decade, 2) +
+        " mV/decade (" + fixed(cal->slope_percent_of_nernst, 1) + " % of Nernst), E0 " +
+        fixed(cal->e0_mv, 1) + " mV" + (cal->accepted ? "" : ", refused: " + cal->reason));
+    if (!cal->accepted)
+      return Failure{Reach::series,
+                     "calibration of '" + entry.electrode + "' refused: " + cal->reason};
+    return std::nullopt;
+  }
+
+  std::optional<Failure> run_burette_check(const Entry& entry) {
+    auto it = inst_.burettes.find(entry.burette);
+    if (it == inst_.burettes.end() || !it->second)
+      return Failure{Reach::series, "no burette '" + entry.burette + "' set up"};
+    if (!inst_.balance)
+      return Failure{Reach::series, "a burette check needs a balance"};
+    drivers::BuretteClient& burette = *it->second;
+    if (auto f = bring_vessel(entry.positions.front()))
+      return f;
+    if (inst_.stirrer)
+      (void)inst_.stirrer->stop();  // a stirring bar disturbs the weighing
+    controller::BuretteCheckInput input;
+    input.nominal_volume_ml = entry.nominal_volume_ml;
+    input.test_volume_ml = entry.test_volume_ml;
+    input.water_temperature_c = entry.water_temperature_c;
+    const double largest =
+        burette.info().max_dose_ml > 0.0 ? burette.info().max_dose_ml : entry.test_volume_ml;
+    for (int k = 0; k < entry.deliveries; ++k) {
+      if (aborted())
+        return Failure{Reach::series, "aborted by the operator"};
+      auto filled = burette.fill(options_.titrant_add_rate_ml_per_min * 3.0);
+      if (!filled)
+        return device_failure("burette '" + entry.burette + "', filling", filled.error());
+      if (filled->cylinder_content_ml + 1e-9 < entry.test_volume_ml)
+        return Failure{Reach::series, "the reservoir of burette '" + entry.burette + "' is empty"};
+      auto before = inst_.balance->read_stable();
+      if (!before)
+        return device_failure("balance", before.error());
+      double left = entry.test_volume_ml;
+      while (left > 1e-9) {
+        const double dose = std::min(left, largest);
+        auto dosed = burette.dose(dose, options_.titrant_add_rate_ml_per_min);
+        if (!dosed)
+          return device_failure("burette '" + entry.burette + "', delivering", dosed.error());
+        left -= dose;
+      }
+      auto after = inst_.balance->read_stable();
+      if (!after)
+        return device_failure("balance", after.error());
+      input.water_masses_g.push_back(after->mass_g - before->mass_g);
+      store::DeterminationRecord d;
+      d.entry_id = entry_->entry_id;
+      d.replicate = k + 1;
+      d.position = entry.positions.front();
+      d.value = after->mass_g - before->mass_g;
+      d.unit = "g";
+      if (auto f = store_determination(d))
+        return f;
+    }
+    if (auto f = take_vessel_away())
+      return f;
+    auto check = controller::check_burette(input);
+    if (!check)
+      return Failure{Reach::series,
+                     "burette check of '" + entry.burette + "': " + check.error().message};
+    store::BuretteCheckRecord rec;
+    rec.entry_id = entry_->entry_id;
+    rec.burette = entry.burette;
+    rec.nominal_volume_ml = entry.nominal_volume_ml;
+    rec.test_volume_ml = entry.test_volume_ml;
+    rec.water_masses_g = input.water_masses_g;
+    rec.water_temperature_c = entry.water_temperature_c;
+    rec.mean_volume_ml = check->mean_volume_ml;
+    rec.systematic_error_percent = check->systematic_error_percent;
+    rec.random_error_percent = check->random_error_percent;
+    rec.passed = check->passed;
+    rec.limits_source = check->limits_source;
+    rec.checked_utc = method::format_utc(now());
+    if (auto stored = stores_.series.add_burette_check(rec); !stored)
+      return Failure{Reach::series, stored.error().describe()};
+    store::EntryResultRecord r;
+    r.entry_id = entry_->entry_id;
+    r.name = "delivered volume";
+    r.value = check->mean_volume_ml;
+    r.unit = "mL";
+    r.count = static_cast<int>(check->volumes_ml.size());
+    r.sd = check->random_error_ul / 1000.0;
+    r.rsd_percent = check->random_error_percent;
+    r.detail_json = json{
+        {"systematic_error_percent", check->systematic_error_percent},
+        {"random_error_percent", check->random_error_percent},
+        {"systematic_error_ul", check->systematic_error_ul},
+        {"systematic_limit_ul", check->limits.systematic_ul},
+        {"random_error_ul", check->random_error_ul},
+        {"random_limit_ul", check->limits.random_ul},
+        {"mass_to_volume_factor_ml_per_g", check->mass_to_volume_factor_ml_per_g},
+        {"limits_source", check->limits_source},
+        {"passed",
+         check->passed}}.dump();
+    entry_->values = check->volumes_ml;
+    entry_->mean = check->mean_volume_ml;
+    entry_->unit = "mL";
+    say("burette check of '" + entry.burette + "': systematic " +
+        fixed(check->systematic_error_percent, 3) + " %, random " +
+        fixed(check->random_error_percent, 3) + " % (" + check->limits_source + ")");
+    if (!check->passed)
+      flag("burette check failed: systematic " + fixed(check->systematic_error_ul, 1) +
+           " µL (limit " + fixed(check->limits.systematic_ul, 1) + " µL), random " +
+           fixed(check->random_error_ul, 1) + " µL (limit " + fixed(check->limits.random_ul, 1) +
+           " µL)");
+    r.flags = flags_text();
+    if (auto stored = stores_.series.add_entry_result(r); !stored)
+      return Failure{Reach::series, stored.error().describe()};
+    if (!check->passed)
+      return Failure{Reach::series, "burette '" + entry.burette + "' failed its check"};
+    return std::nullopt;
+  }
+
+  // ---- small things ------------------------------------------------------
+
+  std::optional<Failure> store_determination(store::DeterminationRecord& d) {
+    auto id = stores_.series.add_determination(d);
+    if (!id)
+      return Failure{Reach::series, id.error().describe()};
+    d.id = *id;
+    if (observer_)
+      observer_->on_determination(d);
+    return std::nullopt;
+  }
+
+  void flag(const std::string& why) {
+    flagged_ = true;
+    flags_.push_back(why);
+    notes_.push_back(why);
+    say("flagged: " + why);
+  }
+
+  std::string flags_text() {
+    std::string out;
+    for (const auto& f : flags_)
+      out += (out.empty() ? "" : "; ") + f;
+    flags_.clear();
+    return out;
+  }
+
+  void say(const std::string& text) {
+    if (observer_)
+      observer_->on_message(text);
+  }
+
+  bool aborted() const { return abort_ && abort_->load(); }
+
+  method::TimePoint now() const {
+    return start_time_ + std::chrono::milliseconds(static_cast<std::int64_t>(
+                             (inst_.clock.now_s() - clock_start_s_) * 1000.0));
+  }
+
+  void stop_burettes() {
+    for (auto& [name, burette] : inst_.burettes) {
+      if (!burette)
+        continue;
+      if (auto r = burette->stop(); !r) {
+        outcome_.burettes_stopped = false;
+        say("burette '" + name + "' did not confirm the stop: " + r.error().describe());
+      }
+    }
+  }
+
+  const Series& series_;
+  const std::string& text_;
+  SeriesInstruments& inst_;
+  SeriesStores& stores_;
+  const SeriesOptions& options_;
+  SeriesObserver* observer_;
+  const std::atomic<bool>* abort_;
+  method::TimePoint start_time_;
+  double clock_start_s_ = 0.0;
+  SeriesOutcome outcome_;
+  EntryOutcome* entry_ = nullptr;
+  std::vector<std::string> notes_;
+  std::vector<std::string> flags_;
+  bool flagged_ = false;
+  double last_endpoint_ml_ = 0.0;
+  std::map<std::string, double> blank_ml_;
+  std::map<std::string, double> blank_sd_ml_;
+};
+
+}  // namespace
+
+SeriesOutcome run_series(const Series& series, const std::string& text,
+                         SeriesInstruments& instruments, SeriesStores& stores,
+                         const SeriesOptions& options, SeriesObserver* observer,
+                         const std::atomic<bool>* abort) {
+  SeriesRun run(series, text, instruments, stores, options, observer, abort);
+  return run.run();
+}
+
+}  // namespace veq::series
