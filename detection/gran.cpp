@@ -217,10 +217,14 @@ struct GranFunctions {
   std::vector<double> z;         // ln(10) (E - Eref)
   std::vector<double> dilution;  // 1 / ((V0 + V) alpha_M): the before function's factor, inverted
   std::vector<double> h_before, h_after;
+  // Counts the changes of h_before and h_after, so that a line fitted to
+  // the same points of the same functions need not be fitted again.
+  unsigned version = 0;
 
   // One exponential per point: h_after = 10^((E - Eref)/s), h_before =
   // dilution / h_after.
   void reciprocals(double slope) {
+    ++version;
     const std::size_t n = z.size();
     h_before.resize(n);
     h_after.resize(n);
@@ -277,7 +281,7 @@ SideFit select_and_fit(const std::vector<double>& v, const std::vector<double>& 
   RelativeLine line(v[order.back()]);
   std::vector<std::size_t> used;  // positions in order
   used.reserve(count);
-  std::vector<std::size_t> skipped, missed;
+  std::vector<std::size_t> skipped;
   const std::size_t seed =
       std::clamp<std::size_t>((count + 1) / 2, std::min<std::size_t>(3, count), count);
   for (std::size_t k = 0; k < seed; ++k) {
@@ -307,24 +311,39 @@ SideFit select_and_fit(const std::vector<double>& v, const std::vector<double>& 
     if (!line.solve())
       return {};
   }
-  // Grow towards the break.
-  int misses = 0;
-  for (std::size_t k = seed; k < count; ++k) {
-    const double x = v[order[k]];
-    const double hk = h[order[k]];
-    if (line.within(x, hk, acceptance * sigma_r)) {
-      skipped.insert(skipped.end(), missed.begin(), missed.end());
-      missed.clear();
-      misses = 0;
-      line.add(x, hk);
-      used.push_back(k);
-    } else {
-      // Three misses in a row end the line (noise alone does that about
-      // once in 50 million points); fewer are single bad readings, skipped.
-      missed.push_back(k);
-      if (++misses >= 3)
-        break;
+  // Grow towards the break. The loop calls no function (the positions go
+  // into room made beforehand, the misses wait in two locals), so that the
+  // line's sums stay in registers: a call would spill them to memory at
+  // every point, and the chain from one point's sums to the next would run
+  // through a store and a load each time.
+  {
+    std::size_t used_count = used.size(), skipped_count = skipped.size();
+    used.resize(count);
+    skipped.resize(count);  // every position is used, skipped or neither
+    std::size_t missed[2] = {0, 0};
+    int misses = 0;
+    const double limit = acceptance * sigma_r;
+    RelativeLine grow = line;
+    for (std::size_t k = seed; k < count; ++k) {
+      const double x = v[order[k]];
+      const double hk = h[order[k]];
+      if (grow.within(x, hk, limit)) {
+        for (int j = 0; j < misses; ++j)
+          skipped[skipped_count++] = missed[j];
+        misses = 0;
+        grow.add(x, hk);
+        used[used_count++] = k;
+      } else {
+        // Three misses in a row end the line (noise alone does that about
+        // once in 50 million points); fewer are single bad readings, skipped.
+        if (misses == 2)
+          break;
+        missed[misses++] = k;
+      }
     }
+    line = grow;
+    used.resize(used_count);
+    skipped.resize(skipped_count);
   }
   if (!line.solve())
     return {};
@@ -348,9 +367,10 @@ SideFit select_and_fit(const std::vector<double>& v, const std::vector<double>& 
   for (std::size_t& u : used)
     u = order[u];
   SideFit fit = regress(v, h, std::move(used));
-  for (std::size_t s : skipped)
-    fit.skipped.push_back(order[s]);
-  std::sort(fit.skipped.begin(), fit.skipped.end());
+  for (std::size_t& s : skipped)
+    s = order[s];
+  std::sort(skipped.begin(), skipped.end());
+  fit.skipped = std::move(skipped);
   return fit;
 }
 
@@ -612,6 +632,7 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   std::vector<double> log_alpha;
   double alpha_for_ml = 0.0;  // equivalence volume the fractions were computed for
   auto set_alpha = [&](const std::vector<double>& la) {
+    ++f.version;
     for (std::size_t i = 0; i < n; ++i)
       f.dilution[i] =
           (sample_volume_ml > 0.0 ? 1.0 / (sample_volume_ml + v[i]) : 1.0) * std::exp(-la[i]);
@@ -692,6 +713,26 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   }
   std::vector<std::size_t> last_before, last_after;
   double slope_moved = 0.0;  // by the last pass's slope fit
+  // What each side's line was last fitted to: the same points of the same
+  // functions at the same noise give the same line (select_and_fit is a
+  // function of these alone), so it is not fitted again.
+  struct FittedFrom {
+    bool valid = false;
+    unsigned version = 0;
+    double sigma_r = 0.0;
+    std::vector<std::size_t> order;
+  };
+  FittedFrom before_fitted, after_fitted;
+  auto fit_side = [&](SideFit& fit, const Side& side, const std::vector<double>& h, double sr,
+                      FittedFrom& from) {
+    if (from.valid && from.version == f.version && from.sigma_r == sr && from.order == side.order)
+      return;
+    fit = select_and_fit(v, h, side, sr, options.acceptance_sigma);
+    from.valid = true;
+    from.version = f.version;
+    from.sigma_r = sr;
+    from.order = side.order;
+  };
   for (int pass = 0; pass < 5; ++pass) {
     auto refreshed = refresh_alpha(combined.ok ? combined.volume_ml : 0.0);
     if (!refreshed)
@@ -713,16 +754,32 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
     if (previous_b1 > 0.0 && previous_b2 > 0.0 && sample_volume_ml > 0.0) {
       const double limit = kIncompleteFraction * sigma_r_of(slope);
       const double ve = previous_volume;
-      auto alpha = [&](std::size_t i) { return log_alpha.empty() ? 1.0 : std::exp(log_alpha[i]); };
-      std::erase_if(before_side.order, [&](std::size_t i) {
+      // The products associate from the left, so these leading factors
+      // taken once give the values of the whole expressions, and a metal
+      // fraction of exactly 1 (no ligand) needs no multiplication.
+      const double after_scale = limit * previous_b1 * previous_b2;
+      const double before_scale = after_scale * ve;
+      const bool with_alpha = !log_alpha.empty();
+      std::size_t kept = 0;
+      for (std::size_t i : before_side.order) {
         const double d = ve - v[i];
-        return v[i] * (sample_volume_ml + v[i]) * alpha(i) >
-               limit * previous_b1 * previous_b2 * ve * d * d;
-      });
-      std::erase_if(after_side.order, [&](std::size_t i) {
+        double bend = v[i] * (sample_volume_ml + v[i]);
+        if (with_alpha)
+          bend *= std::exp(log_alpha[i]);
+        if (!(bend > before_scale * d * d))
+          before_side.order[kept++] = i;
+      }
+      before_side.order.resize(kept);
+      kept = 0;
+      for (std::size_t i : after_side.order) {
         const double d = v[i] - ve;
-        return (sample_volume_ml + v[i]) * alpha(i) > limit * previous_b1 * previous_b2 * d * d;
-      });
+        double bend = sample_volume_ml + v[i];
+        if (with_alpha)
+          bend *= std::exp(log_alpha[i]);
+        if (!(bend > after_scale * d * d))
+          after_side.order[kept++] = i;
+      }
+      after_side.order.resize(kept);
     }
     // Settled when the points on offer are those of the last pass, with the
     // same slope and metal fractions: the selection would repeat itself.
@@ -733,8 +790,8 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
     last_after = after_side.order;
     auto fit_sides = [&]() {
       const double sr = sigma_r_of(slope);
-      before_fit = select_and_fit(v, f.h_before, before_side, sr, options.acceptance_sigma);
-      after_fit = select_and_fit(v, f.h_after, after_side, sr, options.acceptance_sigma);
+      fit_side(before_fit, before_side, f.h_before, sr, before_fitted);
+      fit_side(after_fit, after_side, f.h_after, sr, after_fitted);
     };
     fit_sides();
     // The slope is fitted only while both lines stand: one line alone pins
@@ -870,6 +927,9 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
   // Ve - V before and V - Ve after), the fitted lines, the points turned
   // away, and the metal fraction used.
   make_sides(split);
+  // At most five series and seven markers: room for them at once.
+  result.diagnostics.series.reserve(6);
+  result.diagnostics.markers.reserve(7);
   const Side& final_before_side = before_side;
   const Side& final_after_side = after_side;
   auto add_series = [&](const Side& side, const SideFit& s, const std::vector<double>& h,
@@ -877,16 +937,14 @@ veq::Result<Evaluation> find_endpoints_by_gran(const Curve& curve, const GranOpt
     if (!s.ok)
       return;
     const double scale = std::abs(s.b);
-    DiagnosticSeries points{name, "mL", {}, {}};
-    points.x_ml.reserve(side.order.size());
-    points.y.reserve(side.order.size());
-    for (std::size_t i : side.order) {
-      points.x_ml.push_back(v[i]);
-      points.y.push_back(1.0 / (h[i] * scale));
-    }
-    if (!side.before) {
-      std::reverse(points.x_ml.begin(), points.x_ml.end());
-      std::reverse(points.y.begin(), points.y.end());
+    // In increasing volume: the after side's order runs backwards.
+    const std::size_t count = side.order.size();
+    DiagnosticSeries points{name, "mL", std::vector<double>(count), std::vector<double>(count)};
+    for (std::size_t k = 0; k < count; ++k) {
+      const std::size_t i = side.order[k];
+      const std::size_t at = side.before ? k : count - 1 - k;
+      points.x_ml[at] = v[i];
+      points.y[at] = 1.0 / (h[i] * scale);
     }
     result.diagnostics.series.push_back(std::move(points));
     const double outer = v[s.used.front()];
