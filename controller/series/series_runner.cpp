@@ -252,6 +252,7 @@ class SeriesRun {
       replicates = 1;
     if (entry.kind == EntryKind::titer)
       replicates = static_cast<int>(entry.positions.size());
+    replicates_ = replicates;
     if (use) {
       const std::size_t first = *use * static_cast<std::size_t>(replicates);
       if (first + static_cast<std::size_t>(replicates) > positions.size())
@@ -456,8 +457,8 @@ class SeriesRun {
             flag("replicates still differ by " + fixed(spread, 3) +
                  (m.result.replicate_difference_relative ? " %" : " " + r.unit));
         }
-        if (values.size() < static_cast<std::size_t>(std::max(1, m.replicates)))
-          flag(std::to_string(values.size()) + " of " + std::to_string(m.replicates) +
+        if (values.size() < static_cast<std::size_t>(std::max(1, replicates_)))
+          flag(std::to_string(values.size()) + " of " + std::to_string(replicates_) +
                " replicates gave a value");
         if (auto budget = uncertainty(entry, m, mean, values, endpoint_uncertainties, ready);
             budget) {
@@ -1243,6 +1244,7 @@ class SeriesRun {
   std::vector<std::string> flags_;
   bool flagged_ = false;
   double last_endpoint_ml_ = 0.0;
+  int replicates_ = 1;  ///< of the entry running
   std::map<std::string, double> blank_ml_;
   std::map<std::string, double> blank_sd_ml_;
 };

@@ -1,38 +1,374 @@
 // Whole series in virtual time on a simulated rack: every entry kind, the
-// rules for bad results, and the stopping failures.
+// rules for bad results, and the failures that stop a series. The expected
+// values are the simulator's hidden truths (simulator/bench.hpp
+// position_truths), which the controller never sees.
 #include <gtest/gtest.h>
 
 #include <cmath>
 #include <cstdio>
+#include <cstdlib>
+#include <functional>
 
+#include <nlohmann/json.hpp>
+
+#include "controller/lab_checks.hpp"
 #include "tests/controller/series_bench.hpp"
 
 namespace veq::series {
 namespace {
 
+using nlohmann::json;
 using testing::SeriesBench;
 
+/// Prints what the series does when VEQ_TEST_VERBOSE is set.
 class Printer final : public SeriesObserver {
  public:
-  void on_message(const std::string& text) override { std::printf("    %s\n", text.c_str()); }
-  void on_entry_end(const std::string& label, const std::string& status,
-                    const std::string& note) override {
-    std::printf("  entry '%s': %s %s\n", label.c_str(), status.c_str(), note.c_str());
+  void on_message(const std::string& text) override {
+    if (std::getenv("VEQ_TEST_VERBOSE"))
+      std::printf("    %s\n", text.c_str());
   }
 };
+
+const EntryOutcome* find_entry(const SeriesOutcome& o, const std::string& label) {
+  for (const auto& e : o.entries)
+    if (e.label == label)
+      return &e;
+  return nullptr;
+}
+
+/// The true content of a rack position in mmol/L of its aliquot.
+double true_mmol_per_l(SeriesBench& b, int position, double aliquot_ml) {
+  const auto t = b.bench->position_truths(position);
+  double mol = 0.0;
+  for (const auto& [metal, amount] : t.metals_mol)
+    mol += amount;
+  return mol / (aliquot_ml / 1000.0) * 1000.0;
+}
+
+/// A series with only the given entries after the calibration, titer and
+/// blank that make samples' results possible.
+std::string series_with(const std::string& entries, int check_every = 0) {
+  return "[series]\nname = rule test\ncheck standard every = " + std::to_string(check_every) +
+         "\n[calibration]\nelectrode = calcium electrode 1\nstandards = 0.0001, 0.001, 0.01 "
+         "mol/L\npositions = 2, 3, 4\n"
+         "[blank]\nmethod = calcium in well water\npositions = 9, 10\naliquots = 50 mL\n"
+         "[titer]\ntitrant = EDTA 0.01 mol/L\nmethod = calcium in well water\nstandard molar "
+         "mass = 100.0869 g/mol\npurity = 99.95 %\nmasses = 0.01500, 0.01480, 0.01520 g\n"
+         "positions = 6, 7, 8\n" +
+         entries;
+}
+
+/// The scenario with more rack positions (JSON objects) added.
+std::string scenario_with(const std::vector<json>& positions,
+                          const std::function<void(json&)>& edit = {}) {
+  json s = json::parse(testing::kScenario);
+  for (const auto& p : positions)
+    s["rack"].push_back(p);
+  if (edit)
+    edit(s);
+  return s.dump();
+}
 
 TEST(Series, EveryEntryKindRunsAndTiterAndBlankBringTheResultsToTheTruth) {
   SeriesBench b;
   b.prepare_lab();
   Printer printer;
   auto outcome = b.run(testing::kSeries, &printer);
-  std::printf("status %s: %s\n", store::series_status_name(outcome.status), outcome.reason.c_str());
-  for (const auto& e : outcome.entries) {
-    std::printf("%-16s %-16s %-8s mean %.6g %s (%zu values)\n", entry_kind_name(e.kind),
-                e.label.c_str(), e.status.c_str(), e.mean.value_or(NAN), e.unit.c_str(),
-                e.values.size());
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  ASSERT_EQ(outcome.entries.size(), 8u);
+  for (const auto& e : outcome.entries)
+    EXPECT_EQ(e.status, "done") << e.label << ": " << e.note;
+
+  // Calibration: the scenario's electrode has 98 % of the Nernst slope at
+  // 25 °C (29.58 mV/decade for z = 2; CODATA 2018 R and F) and E0 150 mV.
+  const auto* cal = find_entry(outcome, "calibration");
+  ASSERT_NE(cal, nullptr);
+  EXPECT_NEAR(*cal->mean, 0.98 * controller::nernst_slope_mv_per_decade(25.0, 2), 0.1);
+
+  // Burette check: 4 deliveries of 10 mL; the virtual burette has no
+  // systematic error, so the check passes and finds 10 mL within the
+  // balance's buoyancy and the water table's spread (0.15 %).
+  const auto* check = find_entry(outcome, "burette check");
+  ASSERT_NE(check, nullptr);
+  EXPECT_EQ(check->values.size(), 4u);
+  EXPECT_NEAR(*check->mean, 10.0, 0.015);
+
+  // Blank: 2 µmol of calcium in each vessel (hidden) / 0.00985 mol/L true
+  // EDTA = 0.2030 mL.
+  const auto* blank = find_entry(outcome, "blank");
+  ASSERT_NE(blank, nullptr);
+  EXPECT_NEAR(*blank->mean, 2.0e-6 / 0.00985 * 1000.0, 0.004);
+
+  // Titer: the EDTA's true concentration 0.00985 mol/L against a label of
+  // 0.0100 (hidden): found within 0.1 %.
+  const auto* titer = find_entry(outcome, "titer");
+  ASSERT_NE(titer, nullptr);
+  EXPECT_NEAR(*titer->mean, 0.00985, 0.00985 * 0.001);
+
+  // Samples and check standard: within 0.2 % of the truth with titer and
+  // blank; without them the label and the blank would put them 1.5 % low
+  // and about 1 % high.
+  for (const auto& [label, position] :
+       std::vector<std::pair<std::string, int>>{{"well 1", 11}, {"well 2", 14}}) {
+    const auto* e = find_entry(outcome, label);
+    ASSERT_NE(e, nullptr);
+    const double truth = true_mmol_per_l(b, position, 50.0);
+    EXPECT_NEAR(*e->mean, truth, truth * 0.002) << label;
+    EXPECT_EQ(e->values.size(), 2u) << label;
+    EXPECT_EQ(e->run_ids.size(), 2u) << label;
   }
-  EXPECT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* check_standard = find_entry(outcome, "check 2 mmol/L #1");
+  ASSERT_NE(check_standard, nullptr);
+  EXPECT_NEAR(*check_standard->mean, 2.0, 2.0 * 0.002);
+
+  // Stored: the series, its entries, determinations pointing at their runs,
+  // the calibration and titer records, the burette check.
+  auto stored = b.store->load_series(outcome.series_id);
+  ASSERT_TRUE(stored.has_value());
+  EXPECT_EQ(stored->status, store::SeriesStatus::completed);
+  EXPECT_EQ(stored->text, testing::kSeries);
+  auto entries = b.store->load_entries(outcome.series_id);
+  ASSERT_TRUE(entries.has_value());
+  ASSERT_EQ(entries->size(), 8u);
+  auto well = b.store->load_determinations((*entries)[5].id);
+  ASSERT_TRUE(well.has_value());
+  ASSERT_EQ(well->size(), 2u);
+  for (const auto& d : *well) {
+    auto run = b.store->load_run(d.run_id);
+    ASSERT_TRUE(run.has_value());
+    EXPECT_EQ(run->status, store::RunStatus::completed);
+    EXPECT_EQ(run->run.series, "Birchfield wells, test series");
+    auto detail = json::parse(d.detail_json);
+    EXPECT_NEAR(detail["titer"].get<double>(), 0.985, 0.001);
+    EXPECT_NEAR(detail["blank_ml"].get<double>(), *blank->mean, 1e-12);
+  }
+  auto results = b.store->load_entry_results((*entries)[5].id);
+  ASSERT_TRUE(results.has_value());
+  ASSERT_EQ(results->size(), 1u);
+  auto budget = json::parse((*results)[0].detail_json)["uncertainty"];
+  EXPECT_GT(budget["expanded"].get<double>(), 0.0);
+  EXPECT_EQ(budget["coverage_factor"].get<double>(), 2.0);
+  auto titers = b.store->titer_history("EDTA 0.01 mol/L");
+  ASSERT_TRUE(titers.has_value());
+  ASSERT_EQ(titers->size(), 1u);
+  EXPECT_TRUE((*titers)[0].accepted);
+  auto calibrations = b.store->calibration_history("calcium electrode 1");
+  ASSERT_TRUE(calibrations.has_value());
+  ASSERT_EQ(calibrations->size(), 1u);
+  EXPECT_TRUE((*calibrations)[0].accepted);
+  auto checks = b.store->burette_check_history("burette 1");
+  ASSERT_TRUE(checks.has_value());
+  ASSERT_EQ(checks->size(), 1u);
+  EXPECT_TRUE((*checks)[0].passed);
+  EXPECT_EQ((*checks)[0].water_masses_g.size(), 4u);
+  // A version used by a run is frozen.
+  auto versions = b.store->list_method_versions("calcium in well water");
+  ASSERT_TRUE(versions.has_value());
+  EXPECT_TRUE(versions->back().used);
+  // The burette stands still.
+  EXPECT_TRUE(outcome.burettes_stopped);
+}
+
+TEST(Series, NoEndpointIsRepeatedOnceOnASpareThenFlaggedAndTheSeriesGoesOn) {
+  // Positions 20 and 21 hold 10 times too much calcium: the endpoint lies
+  // beyond the method's largest volume of 20 mL.
+  SeriesBench b(scenario_with({{{"position", 20}, {"metal_conc_mol_per_l", 0.02}},
+                               {{"position", 21}, {"metal_conc_mol_per_l", 0.02}},
+                               {{"position", 22}, {"metal_conc_mol_per_l", 0.0018}}}));
+  b.prepare_lab();
+  auto outcome =
+      b.run(series_with("[sample]\nid = strong brine\nmethod = calcium in well "
+                        "water\nreplicates = 1\npositions = 20, 21\naliquots = 50 mL\n"
+                        "[sample]\nid = well 1\nmethod = calcium in well water\n"
+                        "replicates = 1\npositions = 22\naliquots = 50 mL\n"));
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* brine = find_entry(outcome, "strong brine");
+  ASSERT_NE(brine, nullptr);
+  EXPECT_EQ(brine->status, "failed");
+  EXPECT_NE(brine->note.find("no endpoint"), std::string::npos) << brine->note;
+  EXPECT_EQ(brine->run_ids.size(), 2u);  // the first try and its repeat
+  auto determinations = b.store->load_determinations(brine->entry_id);
+  ASSERT_TRUE(determinations.has_value());
+  ASSERT_EQ(determinations->size(), 2u);
+  EXPECT_EQ((*determinations)[0].flags, "repeated");
+  EXPECT_EQ((*determinations)[0].position, 20);
+  EXPECT_EQ((*determinations)[1].flags, "failed");
+  EXPECT_EQ((*determinations)[1].position, 21);
+  // The next sample still ran.
+  const auto* well = find_entry(outcome, "well 1");
+  ASSERT_NE(well, nullptr);
+  EXPECT_EQ(well->status, "done");
+  EXPECT_NEAR(*well->mean, 1.8, 1.8 * 0.002);
+}
+
+TEST(Series, DuplicatesThatDisagreeGetOneExtraReplicate) {
+  // The second vessel holds 3 % more calcium than the first (a badly mixed
+  // sample): beyond the method's 1 %.
+  SeriesBench b(scenario_with({{{"position", 20}, {"metal_conc_mol_per_l", 0.00180}},
+                               {{"position", 21}, {"metal_conc_mol_per_l", 0.001854}},
+                               {{"position", 22}, {"metal_conc_mol_per_l", 0.00181}}}));
+  b.prepare_lab();
+  auto outcome =
+      b.run(series_with("[sample]\nid = well 3\nmethod = calcium in well water\n"
+                        "positions = 20, 21, 22\naliquots = 50 mL\n"));
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* well = find_entry(outcome, "well 3");
+  ASSERT_NE(well, nullptr);
+  EXPECT_EQ(well->values.size(), 3u);
+  EXPECT_NE(well->note.find("one extra replicate"), std::string::npos) << well->note;
+  // Still 2.9 % apart after the third: flagged, not hidden.
+  EXPECT_EQ(well->status, "flagged");
+  EXPECT_NE(well->note.find("still differ"), std::string::npos) << well->note;
+}
+
+TEST(Series, AResultOutsideTheMethodsLimitsIsFlaggedNotHidden) {
+  SeriesBench b(
+      scenario_with({{{"position", 20}, {"metal_conc_mol_per_l", 0.0060}, {"volume_ml", 20.0}},
+                     {{"position", 21}, {"metal_conc_mol_per_l", 0.0060}, {"volume_ml", 20.0}}}));
+  b.prepare_lab();
+  auto outcome =
+      b.run(series_with("[sample]\nid = hard spring\nmethod = calcium in well water\n"
+                        "positions = 20, 21\naliquots = 20 mL\n"));
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* spring = find_entry(outcome, "hard spring");
+  ASSERT_NE(spring, nullptr);
+  EXPECT_EQ(spring->status, "flagged");
+  ASSERT_TRUE(spring->mean.has_value()) << spring->note;
+  EXPECT_NEAR(*spring->mean, 6.0, 6.0 * 0.003);  // the value is kept
+  EXPECT_NE(spring->note.find("above the method's highest"), std::string::npos) << spring->note;
+}
+
+/// Checks that a stopped series left its runs' points, a reason naming
+/// `words`, and a burette that does not move.
+void expect_clean_stop(SeriesBench& b, const SeriesOutcome& outcome, const std::string& words) {
+  EXPECT_EQ(outcome.status, store::SeriesStatus::stopped);
+  EXPECT_NE(outcome.reason.find(words), std::string::npos) << outcome.reason;
+  auto stored = b.store->load_series(outcome.series_id);
+  ASSERT_TRUE(stored.has_value());
+  EXPECT_EQ(stored->status, store::SeriesStatus::stopped);
+  EXPECT_EQ(stored->reason, outcome.reason);
+  auto runs = b.store->list_runs();
+  ASSERT_TRUE(runs.has_value());
+  for (const auto& r : *runs) {
+    auto points = b.store->load_points(r.id);
+    ASSERT_TRUE(points.has_value());
+    EXPECT_EQ(static_cast<std::int64_t>(points->size()), r.point_count) << "run " << r.id;
+  }
+  // A minute later the burette has not moved.
+  const double delivered = b.bench->burette().true_delivered_ml();
+  b.clock.sleep_for(drivers::from_seconds(60.0));
+  auto status = b.burette->status();
+  if (status) {
+    EXPECT_NE(status->state, drivers::BuretteState::dosing);
+  }
+  EXPECT_EQ(b.bench->burette().true_delivered_ml(), delivered);
+}
+
+/// Switches a fault on when an entry starts.
+class FaultAtEntry final : public SeriesObserver {
+ public:
+  FaultAtEntry(std::string label, std::function<void()> act)
+      : label_(std::move(label)), act_(std::move(act)) {}
+  void on_entry(const std::string&, const std::string& label) override {
+    if (label == label_)
+      act_();
+  }
+
+ private:
+  std::string label_;
+  std::function<void()> act_;
+};
+
+const std::string kTwoSamples =
+    "[sample]\nid = well 1\nmethod = calcium in well water\npositions = 11, 12\naliquots = 50 "
+    "mL\n[sample]\nid = well 2\nmethod = calcium in well water\npositions = 14, 15\naliquots = "
+    "50 mL\n";
+
+TEST(Series, ABuretteFaultStopsTheSeriesWithItsPointsKept) {
+  SeriesBench b;
+  b.prepare_lab();
+  FaultAtEntry fault("well 2", [&] {
+    simulator::MotorFault m;
+    m.kind = simulator::MotorFaultKind::stalled;
+    m.after_s = b.clock.now_s() + 200.0;  // while the first vessel of well 2 is titrated
+    b.bench->burette().set_motor_fault(m);
+  });
+  auto outcome = b.run(series_with(kTwoSamples), &fault);
+  expect_clean_stop(b, outcome, "stalled");
+  EXPECT_EQ(find_entry(outcome, "well 1")->status, "done");
+  EXPECT_EQ(find_entry(outcome, "well 2")->status, "failed");
+}
+
+TEST(Series, ALostElectrodeStopsTheSeries) {
+  SeriesBench b;
+  b.prepare_lab();
+  FaultAtEntry fault("well 2", [&] {
+    simulator::FaultPlan plan;
+    plan.kind = simulator::FaultKind::disconnect;
+    plan.after_s = b.clock.now_s() + 100.0;
+    b.bench->set_fault("electrode", plan);
+  });
+  auto outcome = b.run(series_with(kTwoSamples), &fault);
+  expect_clean_stop(b, outcome, "electrode");
+}
+
+TEST(Series, AnEmptyReservoirStopsTheSeries) {
+  // 70 mL of EDTA in the bottle: enough for the blank, the titer (about
+  // 48 mL with the volume past each endpoint) and a little more, not for
+  // both samples (about 10 mL each determination).
+  SeriesBench b(scenario_with({}, [](json& s) { s["burette"]["reservoir_ml"] = 70.0; }));
+  b.prepare_lab();
+  auto outcome = b.run(series_with(kTwoSamples));
+  expect_clean_stop(b, outcome, "reservoir");
+}
+
+TEST(Series, AnExpiredTiterStopsTheSeriesBeforeTheSample) {
+  SeriesBench b;
+  b.prepare_lab();
+  // A titer determined eight days before the series: valid seven days.
+  ASSERT_TRUE(method::record_titer(*b.store, "EDTA 0.01 mol/L", {0.00985, 0.00986, 0.00985},
+                                   method::parse_utc("2026-11-25T07:00:00Z").value())
+                  .has_value());
+  const std::string text =
+      "[series]\nname = expired titer\n[calibration]\nelectrode = calcium electrode "
+      "1\nstandards = 0.0001, 0.001, 0.01 mol/L\npositions = 2, 3, 4\n" +
+      kTwoSamples;
+  auto outcome = b.run(text);
+  expect_clean_stop(b, outcome, "expired");
+  auto runs = b.store->list_runs();
+  EXPECT_TRUE(runs->empty());  // no titrant was added for a sample
+}
+
+TEST(Series, AFailedCheckStandardStopsTheSeries) {
+  // The check standard's vessel truly holds 2.10 mmol/L against 2.00
+  // expected: 5 % off, tolerance 1.5 %.
+  SeriesBench b(scenario_with({}, [](json& s) {
+    for (auto& p : s["rack"])
+      if (p["position"] == 17)
+        p["metal_conc_mol_per_l"] = 0.00210;
+  }));
+  b.prepare_lab();
+  auto outcome = b.run(series_with(
+      kTwoSamples +
+          "[check standard]\nid = check 2 mmol/L\nmethod = calcium in well water\npositions "
+          "= 17, 18\nreplicates = 1\naliquots = 50 mL\nexpected = 2 mmol/L\ntolerance = 1.5 %\n",
+      1));
+  expect_clean_stop(b, outcome, "check standard");
+  // It ran after the first sample and stopped the series before the second.
+  EXPECT_EQ(find_entry(outcome, "well 1")->status, "done");
+  EXPECT_EQ(find_entry(outcome, "well 2"), nullptr);
+}
+
+TEST(Series, ARefusedCalibrationStopsTheSeries) {
+  // A worn electrode: 80 % of the Nernst slope, below the 90 % accepted.
+  SeriesBench b(scenario_with({}, [](json& s) { s["electrode"]["slope_percent"] = 80.0; }));
+  b.prepare_lab();
+  auto outcome = b.run(series_with(kTwoSamples));
+  expect_clean_stop(b, outcome, "calibration");
+  auto calibrations = b.store->calibration_history("calcium electrode 1");
+  ASSERT_TRUE(calibrations.has_value());
+  ASSERT_EQ(calibrations->size(), 1u);
+  EXPECT_FALSE((*calibrations)[0].accepted);  // stored, so that the history shows it
 }
 
 }  // namespace
