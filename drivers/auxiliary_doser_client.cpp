@@ -19,12 +19,17 @@ const char* reagent_name(Reagent reagent) {
       return "indicator";
     case Reagent::water:
       return "water";
+    case Reagent::acid:
+      return "acid";
+    case Reagent::base:
+      return "base";
   }
   return "unknown";
 }
 
 std::optional<Reagent> reagent_from_name(std::string_view name) {
-  for (Reagent r : {Reagent::buffer, Reagent::masking_agent, Reagent::indicator, Reagent::water}) {
+  for (Reagent r : {Reagent::buffer, Reagent::masking_agent, Reagent::indicator, Reagent::water,
+                    Reagent::acid, Reagent::base}) {
     if (name == reagent_name(r))
       return r;
   }
@@ -79,7 +84,7 @@ Result<DoserInfo> parse_identity(const protocol::Message& reply, const std::stri
     if (!r) {
       return make_error(ErrorKind::garbled, device + ": unknown reagent '" + word +
                                                 "' (known: buffer, masking_agent, indicator, "
-                                                "water)");
+                                                "water, acid, base)");
     }
     info.reagents.push_back(*r);
     if (comma == std::string::npos)

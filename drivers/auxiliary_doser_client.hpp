@@ -1,5 +1,6 @@
 // Host side of an auxiliary doser: pumps that add the reagents a titration
-// needs besides the titrant (buffer, masking agent, indicator, water), each
+// needs besides the titrant (buffer, masking agent, indicator, water, acid
+// and base to adjust the pH), each
 // from its own bottle. A dosing device: every request is bounded in volume
 // and time, and a failed exchange stops it and halts further doses.
 #pragma once
@@ -17,9 +18,17 @@
 namespace veq::drivers {
 
 /// A reagent an auxiliary doser adds. Stored with runs: append-only values.
-enum class Reagent : int { buffer = 1, masking_agent = 2, indicator = 3, water = 4 };
+/// acid and base adjust the vessel's pH (an adjust-pH step).
+enum class Reagent : int {
+  buffer = 1,
+  masking_agent = 2,
+  indicator = 3,
+  water = 4,
+  acid = 5,
+  base = 6
+};
 
-/// "buffer", "masking_agent", "indicator", "water"
+/// "buffer", "masking_agent", "indicator", "water", "acid", "base"
 const char* reagent_name(Reagent reagent);
 std::optional<Reagent> reagent_from_name(std::string_view name);
 

@@ -26,9 +26,9 @@ BalanceSpec balance_spec(const Scenario& s) {
   return b;
 }
 
-constexpr std::array<drivers::Reagent, 4> kReagents = {
+constexpr std::array<drivers::Reagent, 6> kReagents = {
     drivers::Reagent::buffer, drivers::Reagent::masking_agent, drivers::Reagent::indicator,
-    drivers::Reagent::water};
+    drivers::Reagent::water,  drivers::Reagent::acid,          drivers::Reagent::base};
 
 }  // namespace
 
@@ -194,8 +194,8 @@ VesselContent SimulatedBench::additions() const {
   c.extra_metal_mol = vessel_.sample.blank_metal_mol;
   c.second_titrant_ml = second_titrant_in_vessel_ml();
   const auto& d = scenario_.auxiliary_doser;
-  const std::array<const ReagentSpec*, 4> bottles = {&d.buffer, &d.masking_agent, &d.indicator,
-                                                     &d.water};
+  const std::array<const ReagentSpec*, 6> bottles = {&d.buffer, &d.masking_agent, &d.indicator,
+                                                     &d.water,  &d.acid,          &d.base};
   for (std::size_t i = 0; i < kReagents.size(); ++i) {
     const double ml = doser_.true_added_ml(kReagents[i]) - doser_zero_ml_[i];
     c.other_ml += ml;
@@ -257,6 +257,13 @@ BenchTruths SimulatedBench::truths() const {
   t.balance_offset_g = s.balance.offset_g;
   t.balance_sensitivity_error_percent = s.balance.sensitivity_error_percent;
   t.vessel_ph = s.sample.ph;
+  if (!s.chemistry.present && s.sample.buffer_capacity_mol_per_ph > 0.0) {
+    // The 1:1 vessel's pH moved by acid or base through its buffer capacity.
+    VesselContent c = added;
+    c.titrant_ml = t.titrant_delivered_ml;
+    if (truth_vessel_.solve(c))
+      t.vessel_ph = truth_vessel_.ph();
+  }
   if (s.chemistry.present) {
     VesselContent c = added;
     c.titrant_ml = t.titrant_delivered_ml;

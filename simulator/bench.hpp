@@ -51,7 +51,8 @@ struct BenchTruths {
   double vessel_equivalence_reading_ml = 0.0;
   /// pH in the vessel now: the chemistry section's equilibrium (moved by
   /// acid or base from the doser when pH follows the proton balance), or the
-  /// 1:1 sample's fixed pH.
+  /// 1:1 sample's pH (moved by acid or base through its
+  /// buffer_capacity_mol_per_ph, fixed without one).
   double vessel_ph = 0.0;
   /// Rack position of the vessel the sensors read now: where the sample
   /// changer's head last came down; 0 before that (the scenario's own

@@ -431,6 +431,8 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.number(*j, "sample", "alpha_metal", s.sample.alpha_metal, false, 1e-30, 1.0);
     r.number(*j, "sample", "reaction_time_s", s.sample.reaction_time_s, false, 0.0, 3600.0);
     r.number(*j, "sample", "blank_metal_mol", s.sample.blank_metal_mol, false, 0.0, 1.0);
+    r.number(*j, "sample", "buffer_capacity_mol_per_ph", s.sample.buffer_capacity_mol_per_ph, false,
+             0.0, 100.0);
   }
   if (const json* j = r.section(doc, "titrant", true)) {
     r.text(*j, "titrant", "name", s.titrant.name);
@@ -539,6 +541,8 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     r.reagent(*j, "auxiliary_doser", "masking_agent", d.masking_agent);
     r.reagent(*j, "auxiliary_doser", "indicator", d.indicator);
     r.reagent(*j, "auxiliary_doser", "water", d.water);
+    r.reagent(*j, "auxiliary_doser", "acid", d.acid);
+    r.reagent(*j, "auxiliary_doser", "base", d.base);
     r.motor_fault(*j, "auxiliary_doser", d.motor_fault);
     r.fault(*j, "auxiliary_doser", s.auxiliary_doser_fault);
   }

@@ -131,8 +131,9 @@ struct ReagentSpec {
   /// made from salts with a trace of calcium adds a blank with every mL).
   double metal_conc_mol_per_l = 0.0;
   /// Strong acid in the reagent, mol/L (negative: strong base). It moves the
-  /// vessel's pH only when the scenario's chemistry section leaves pH to the
-  /// proton balance (no fixed "ph"); the 1:1 model holds pH fixed.
+  /// vessel's pH when the scenario's chemistry section leaves pH to the
+  /// proton balance (no fixed "ph"), or in the 1:1 model when the sample
+  /// has a buffer_capacity_mol_per_ph; otherwise the pH stays fixed.
   double strong_acid_mol_per_l = 0.0;
 };
 
@@ -146,6 +147,11 @@ struct AuxiliaryDoserSpec {
   ReagentSpec masking_agent{false, 250.0};
   ReagentSpec indicator{true, 100.0};
   ReagentSpec water{true, 2000.0};
+  /// Strong acid and base to adjust the pH; absent unless the scenario
+  /// names them. 0.1 mol/L: hydrochloric acid and sodium hydroxide as a lab
+  /// keeps them for small pH moves (common practice).
+  ReagentSpec acid{false, 250.0, 0.0, 0.1};
+  ReagentSpec base{false, 250.0, 0.0, -0.1};
   MotorFault motor_fault;
 };
 

@@ -25,7 +25,7 @@ VirtualAuxiliaryDoser::VirtualAuxiliaryDoser(const AuxiliaryDoserSpec& spec, dri
                                              std::uint64_t seed)
     : VirtualDevice(clock, seed),
       spec_(spec),
-      bottles_{spec.buffer, spec.masking_agent, spec.indicator, spec.water},
+      bottles_{spec.buffer, spec.masking_agent, spec.indicator, spec.water, spec.acid, spec.base},
       host_silence_limit_(drivers::from_seconds(kDefaultHostSilenceS)) {}
 
 Duration VirtualAuxiliaryDoser::motion_end(std::string* why) const {
@@ -76,7 +76,7 @@ double VirtualAuxiliaryDoser::true_added_ml(Reagent reagent) const {
 
 double VirtualAuxiliaryDoser::true_added_ml() const {
   double total = 0.0;
-  for (int i = 0; i < 4; ++i)
+  for (int i = 0; i < static_cast<int>(bottles_.size()); ++i)
     total += true_added_ml(reagent_at(i));
   return total;
 }
@@ -138,7 +138,7 @@ protocol::Message VirtualAuxiliaryDoser::handle(const protocol::Message& request
     m.add("model", spec_.model);
     m.add("protocol", std::to_string(protocol::kRevision));
     std::string reagents;
-    for (int i = 0; i < 4; ++i) {
+    for (int i = 0; i < static_cast<int>(bottles_.size()); ++i) {
       if (bottles_[static_cast<std::size_t>(i)].present)
         reagents +=
             (reagents.empty() ? "" : ",") + std::string(drivers::reagent_name(reagent_at(i)));
@@ -176,7 +176,7 @@ protocol::Message VirtualAuxiliaryDoser::handle(const protocol::Message& request
     if (!reagent)
       return protocol::error_reply(seq, "bad_field",
                                    "reagent must be buffer, masking_agent, "
-                                   "indicator or water");
+                                   "indicator, water, acid or base");
     const auto i = static_cast<std::size_t>(index_of(*reagent));
     if (!bottles_[i].present) {
       return protocol::error_reply(seq, "bad_field",

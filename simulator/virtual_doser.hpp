@@ -1,5 +1,5 @@
 // A virtual auxiliary doser: one pump and bottle per reagent (buffer, masking
-// agent, indicator, water), with the safeguards of a dosing device (every
+// agent, indicator, water, acid, base), with the safeguards of a dosing device (every
 // dose bounded in volume and time, the host-silence stop), a hidden delivery
 // error and motor faults from the scenario.
 #pragma once
@@ -48,8 +48,8 @@ class VirtualAuxiliaryDoser final : public VirtualDevice {
   drivers::protocol::Message status_reply(std::uint32_t sequence) const;
 
   AuxiliaryDoserSpec spec_;
-  std::array<ReagentSpec, 4> bottles_;
-  std::array<double, 4> true_added_{};  ///< per reagent, mL
+  std::array<ReagentSpec, 6> bottles_;
+  std::array<double, 6> true_added_{};  ///< per reagent, mL
   Motion motion_;
   int last_reagent_ = -1;
   double last_dosed_ml_ = 0.0;

@@ -146,7 +146,22 @@ protocol::Message VirtualElectrode::reading() {
   if (in_range)
     m.add("potential_mv", e, 3);
   m.add("temperature_c", spec_.temperature_c, 2);
+  if (auto ph = measured_ph())
+    m.add("ph", *ph, 3);
   return m;
+}
+
+std::optional<double> VirtualElectrode::measured_ph() {
+  // The pH of the vessel as last solved for the potential (a replayed
+  // curve has no vessel to read).
+  if (!spec_.reports_ph || replay_.present)
+    return std::nullopt;
+  double ph = vessel_.ph();
+  if (spec_.ph_noise > 0.0) {
+    std::normal_distribution<double> noise(0.0, spec_.ph_noise);
+    ph += noise(random_);
+  }
+  return ph;
 }
 
 protocol::Message VirtualElectrode::handle(const protocol::Message& request) {
@@ -172,6 +187,8 @@ protocol::Message VirtualElectrode::handle(const protocol::Message& request) {
     protocol::Message m = protocol::ok_reply(seq);
     m.add("potential_mv", e, 3);
     m.add("temperature_c", spec_.temperature_c, 2);
+    if (auto ph = measured_ph())
+      m.add("ph", *ph, 3);
     return m;
   }
   if (request.word == "stream") {

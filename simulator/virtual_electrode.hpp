@@ -6,6 +6,7 @@
 #pragma once
 
 #include <functional>
+#include <optional>
 #include <vector>
 
 #include "simulator/vessel.hpp"
@@ -66,6 +67,8 @@ class VirtualElectrode final : public VirtualDevice {
   /// The reading with drift, noise and faults; false when out of range.
   bool measure(double& potential_mv);
   void find_metals();
+  /// The pH the meter reports with each reading (reports_ph), noise added.
+  std::optional<double> measured_ph();
 
   ElectrodeSpec spec_;
   mutable VesselModel vessel_;  // a cache of solved equilibria

@@ -207,6 +207,38 @@ TEST(DoserMessages, IdentifyAndStatus) {
   EXPECT_DOUBLE_EQ(s->reservoir_ml, 99.88);
 }
 
+TEST(DoserMessages, AcidAndBaseAdjustThePh) {
+  // Stored with runs: the values are append-only (acid 5, base 6).
+  EXPECT_EQ(static_cast<int>(Reagent::acid), 5);
+  EXPECT_EQ(static_cast<int>(Reagent::base), 6);
+  EXPECT_EQ(reagent_from_name("acid"), Reagent::acid);
+  EXPECT_EQ(reagent_from_name("base"), Reagent::base);
+  EXPECT_FALSE(reagent_from_name("alkali").has_value());
+  EXPECT_EQ(
+      bytes_of(doser_messages::dose(Reagent::acid, 0.5, 5.0, 11000), 17),
+      line("17 dose reagent=acid volume_ml=0.5000 rate_ml_per_min=5.000 limit_ms=11000 ", "2D6E"));
+  EXPECT_EQ(
+      bytes_of(doser_messages::dose(Reagent::base, 1.25, 5.0, 20000), 18),
+      line("18 dose reagent=base volume_ml=1.2500 rate_ml_per_min=5.000 limit_ms=20000 ", "753C"));
+  auto info = doser_messages::parse_identity(
+      parsed(line("1 ok role=auxiliary_doser model=D6 protocol=2 reagents=buffer,acid,base "
+                  "max_dose_ml=5.000 max_rate_ml_per_min=20.000 ",
+                  "C72C")),
+      kDevice);
+  ASSERT_TRUE(info.has_value()) << info.error().message;
+  EXPECT_TRUE(info->has(Reagent::acid));
+  EXPECT_TRUE(info->has(Reagent::base));
+  EXPECT_FALSE(info->has(Reagent::water));
+  auto s = doser_messages::parse_status(
+      parsed(line("14 ok state=idle reagent=base dosed_ml=0.5000 reservoir_ml=249.50 "
+                  "last_stop=completed fault=none ",
+                  "D50D")),
+      kDevice);
+  ASSERT_TRUE(s.has_value()) << s.error().message;
+  ASSERT_TRUE(s->reagent.has_value());
+  EXPECT_EQ(*s->reagent, Reagent::base);
+}
+
 // ---- photometric sensor ----
 
 TEST(PhotometerMessages, RequestBytes) {
