@@ -17,6 +17,11 @@ void add_evaluate_commands(CLI::App& app);
 void add_run_command(CLI::App& app);
 /// `veq user add`, `veq sign-off`, `veq choose-evaluation`, `veq audit verify|list`.
 void add_audit_commands(CLI::App& app);
+/// `veq export`: runs, points, evaluations and results as CSV or JSON.
+void add_export_command(CLI::App& app);
+/// `veq report` in a build without Qt: it says so and exits with status 2.
+/// With Qt, main() registers ui/report's command instead.
+void add_report_unavailable_command(CLI::App& app);
 /// `veq trials`: endpoint methods on seeded simulated curves (for developers).
 void add_trials_command(CLI::App& app);
 

@@ -5,6 +5,11 @@
 #include "common/result.hpp"
 #include "common/version.hpp"
 #include "controller/cli/commands.hpp"
+#if VEQ_WITH_REPORT
+// The one place where the command line meets Qt: the executable wires the
+// report library of ui/ in; the controller's libraries never see it.
+#include "ui/report/report_command.hpp"
+#endif
 
 int main(int argc, char** argv) {
   CLI::App app{
@@ -20,6 +25,12 @@ int main(int argc, char** argv) {
   veq::cli::add_run_command(app);
   veq::cli::add_trials_command(app);
   veq::cli::add_audit_commands(app);
+  veq::cli::add_export_command(app);
+#if VEQ_WITH_REPORT
+  veq::report::add_report_command(app);
+#else
+  veq::cli::add_report_unavailable_command(app);
+#endif
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
