@@ -59,8 +59,8 @@ TEST(ScaledClock, NeverStepsBackwards) {
 TEST(ScaledClock, RefusesAFactorThatIsNotAPositiveNumber) {
   EXPECT_THROW(ScaledClock(0.0), std::invalid_argument);
   EXPECT_THROW(ScaledClock(-2.0), std::invalid_argument);
-  EXPECT_THROW(ScaledClock(std::numeric_limits<double>::quiet_NaN()), std::invalid_argument);
-  EXPECT_THROW(ScaledClock(std::numeric_limits<double>::infinity()), std::invalid_argument);
+  EXPECT_THROW(ScaledClock{std::numeric_limits<double>::quiet_NaN()}, std::invalid_argument);
+  EXPECT_THROW(ScaledClock{std::numeric_limits<double>::infinity()}, std::invalid_argument);
 }
 
 }  // namespace
