@@ -72,7 +72,12 @@ TEST(TitrationOverPseudoTerminals, FindsTheEquivalenceWithinTwoTenthsOfAPercent)
   OverPty bench(short_scenario());
   const auto outcome = bench.run();
   ASSERT_EQ(outcome.status, store::RunStatus::completed) << outcome.reason;
-  const double truth = bench.sim->true_equivalence_reading_ml();
+  // Read on the serving thread: it may still be answering the host's last
+  // exchanges, and true_equivalence_reading_ml() takes no lock of its own
+  // (a data race under ThreadSanitizer).
+  double truth = 0.0;
+  bench.sim->with_bench(
+      [&](simulator::SimulatedBench& b) { truth = b.true_equivalence_reading_ml(); });
   EXPECT_NEAR(truth, 2.468, 1e-9);  // 10 mL * 0.01234 mol/L / 0.05 mol/L
   EXPECT_LT(std::abs(outcome.endpoint->volume_ml - truth) / truth, 0.002)
       << outcome.endpoint->volume_ml;

@@ -50,9 +50,26 @@ drivers::LinkOptions quick() {
   return o;
 }
 
+/// Served devices must outlive the serving thread (DeviceServer's contract),
+/// but they are built on the server's clock and so declared after it.
+/// Declared after the devices, this stops the server first when a test ends,
+/// also after a failed ASSERT (ThreadSanitizer saw the serving thread answer
+/// devices that were being destroyed).
+class StopFirst {
+ public:
+  explicit StopFirst(DeviceServer& server) : server_(server) {}
+  ~StopFirst() { server_.stop(); }
+  StopFirst(const StopFirst&) = delete;
+  StopFirst& operator=(const StopFirst&) = delete;
+
+ private:
+  DeviceServer& server_;
+};
+
 TEST(DeviceServer, ElectrodeOverTcpOnLocalhost) {
   DeviceServer server(kTimeScale);
   SimulatedBench bench(demo_scenario(), server.clock());
+  StopFirst stop_first(server);
   auto where = server.serve_on_tcp("electrode", bench.electrode());
   ASSERT_TRUE(where.has_value()) << where.error().message;
   EXPECT_EQ(where->rfind("tcp:127.0.0.1:", 0), 0u) << *where;
@@ -79,6 +96,7 @@ TEST(DeviceServer, ElectrodeOverTcpOnLocalhost) {
 TEST(DeviceServer, ReconnectingOverTcpStopsADoseFirst) {
   DeviceServer server(kTimeScale);
   SimulatedBench bench(demo_scenario(), server.clock());
+  StopFirst stop_first(server);
   auto where = server.serve_on_tcp("burette", bench.burette());
   ASSERT_TRUE(where.has_value());
   server.run();
@@ -118,6 +136,7 @@ TEST(DeviceServer, ReconnectingOverTcpStopsADoseFirst) {
 TEST(DeviceServer, AConverterThatRefusesEveryConnectionEndsInBoundedTime) {
   DeviceServer server(kTimeScale);
   SimulatedBench bench(demo_scenario(), server.clock());
+  StopFirst stop_first(server);
   auto where = server.serve_on_tcp("stirrer", bench.stirrer());
   ASSERT_TRUE(where.has_value());
   server.run();
@@ -138,6 +157,7 @@ TEST(DeviceServer, AConverterThatRefusesEveryConnectionEndsInBoundedTime) {
 TEST(DeviceServer, APulledLineInEveryRoleIsDisconnected) {
   DeviceServer server(kTimeScale);
   SimulatedBench bench(demo_scenario(), server.clock());
+  StopFirst stop_first(server);
   const std::vector<std::pair<std::string, VirtualDevice*>> devices = {
       {"burette", &bench.burette()},       {"electrode", &bench.electrode()},
       {"doser", &bench.auxiliary_doser()}, {"photometer", &bench.photometer()},
@@ -214,6 +234,7 @@ TEST(DeviceServer, StreamedReadingsOnATimerThroughAProfile) {
                                                 "/drivers/profiles/lantern_meter.profile");
   ASSERT_TRUE(profile.has_value());
   ProfileSpeakingDevice meter(*profile, bench.electrode());
+  StopFirst stop_first(server);
   auto where = server.serve_on_pseudo_terminal("meter", meter);
   ASSERT_TRUE(where.has_value());
   server.run();
@@ -243,6 +264,7 @@ TEST(DeviceServer, SixteenInstrumentsDrivenAtOnce) {
   constexpr int kReadings = 25;
   DeviceServer server(kTimeScale);
   std::vector<std::unique_ptr<SimulatedBench>> benches;
+  StopFirst stop_first(server);
   std::vector<std::string> ports;
   for (int i = 0; i < kInstruments; ++i) {
     Scenario s = demo_scenario();
