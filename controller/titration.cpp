@@ -1,7 +1,11 @@
 #include "controller/titration.hpp"
 
+#include <algorithm>
 #include <cmath>
+#include <limits>
+#include <optional>
 #include <sstream>
+#include <utility>
 
 #include "detection/crossing.hpp"
 #include "detection/curve.hpp"
@@ -15,6 +19,143 @@ namespace veq::controller {
 namespace {
 
 using drivers::from_seconds;
+
+// Outlying readings while a point settles (an electrode spike, a burst of
+// interference). A signal that settles after a dose moves one way only
+// (the electrode's response is a first-order lag, without overshoot), so a
+// reading, or two in a row, that stands out above (or below) the kept
+// readings on both sides by more than a limit is an outlier: it is left out
+// of the drift and never becomes the point's signal. The newest reading has
+// no reading after it yet; it may become the point's signal only when it
+// lies within the limit of the kept reading before it, or of the line
+// through the two kept readings before it.
+//
+// Smallest limit, mV: far beyond the noise of a working electrode (0.1 mV
+// or less) and beyond what a drift of 1 mV/min moves between readings, so
+// that a noise-free or quiet signal never loses a reading to it.
+constexpr double kOutlierFloorMv = 1.0;
+// The limit is this many standard deviations of the readings' noise.
+// Eight: Gaussian noise alone reaches it about once in 10^15 readings. The
+// standard deviation comes from the differences between successive readings
+// in the window, from their lower quartile (for Gaussian readings of
+// standard deviation s, the lower quartile of |difference| is
+// 0.3186 sqrt(2) s = s / 2.22): it stays sound while a quarter of the pairs
+// are free of spikes, so that a burst of spikes does not widen the limit
+// that is to catch them, and while the signal still moves fast the limit
+// follows its pace.
+constexpr double kOutlierSigmas = 8.0;
+// Differences between successive readings in the window needed before the
+// limit is set; before that, no reading is judged (a point is accepted only
+// after a whole window of readings, eleven at the default settling rule).
+constexpr std::size_t kOutlierMinDifferences = 4;
+// A burst in which most readings are spikes leaves no quiet pair to set the
+// limit by: the limit is then held to this many times the median of the
+// limits at which the run's earlier points were taken (points taken on a
+// settled signal, whose limit reflects the electrode's noise). Four: room
+// for a noisier stretch, still far below a spike.
+constexpr double kOutlierCapFactor = 4.0;
+constexpr std::size_t kOutlierCapPoints = 3;
+// Readings taken past the longest wait while the newest one is an outlier;
+// then the point is not taken at all and the run fails.
+constexpr int kOutlierExtraReadings = 10;
+
+// The readings of one point while it settles, each kept or turned away as
+// an outlier.
+struct SettlingReadings {
+  std::vector<double> times_s, values_mv;
+  std::vector<char> outlier;         // 1: turned away
+  std::vector<double> departure_mv;  // of a reading turned away, from the kept one before it
+  double limit_mv = 0.0;             // 0 until the window holds enough readings
+  // Largest limit, mV, from the points already taken (see settle_and_record).
+  double cap_mv = std::numeric_limits<double>::infinity();
+
+  void add(double t_s, double value_mv, std::size_t first) {
+    times_s.push_back(t_s);
+    values_mv.push_back(value_mv);
+    outlier.push_back(0);
+    departure_mv.push_back(0.0);
+    const std::size_t k = values_mv.size() - 1;
+    std::vector<double> differences;
+    for (std::size_t j = first + 1; j <= k; ++j)
+      differences.push_back(std::abs(values_mv[j] - values_mv[j - 1]));
+    if (differences.size() < kOutlierMinDifferences) {
+      limit_mv = 0.0;
+      return;
+    }
+    const auto quarter = differences.begin() + static_cast<std::ptrdiff_t>(differences.size() / 4);
+    std::nth_element(differences.begin(), quarter, differences.end());
+    limit_mv = std::min(cap_mv, std::max(kOutlierFloorMv, kOutlierSigmas * 2.22 * *quarter));
+    // The reading before the newest, or the two before it, standing out
+    // from the kept reading before them and from the newest alike.
+    for (std::size_t run = 1; run <= 2 && run < k; ++run) {
+      const std::size_t start = k - run;
+      const auto left = kept_before(start);
+      if (!left)
+        break;
+      bool stands_out = true;
+      for (std::size_t j = start; j < k && stands_out; ++j) {
+        const double from_left = values_mv[j] - values_mv[*left];
+        const double from_right = values_mv[j] - values_mv[k];
+        stands_out = std::abs(from_left) > limit_mv && std::abs(from_right) > limit_mv &&
+                     (from_left > 0.0) == (from_right > 0.0) && !outlier[j];
+      }
+      if (stands_out) {
+        for (std::size_t j = start; j < k; ++j) {
+          outlier[j] = 1;
+          departure_mv[j] = values_mv[j] - values_mv[*left];
+        }
+        break;
+      }
+    }
+  }
+
+  // The last kept reading before `index`.
+  std::optional<std::size_t> kept_before(std::size_t index) const {
+    for (std::size_t j = index; j-- > 0;) {
+      if (!outlier[j])
+        return j;
+    }
+    return std::nullopt;
+  }
+
+  // Whether the newest reading may be the point's signal (see above),
+  // and the kept reading before it agrees with its own predecessors too (a
+  // spike followed by a second on the same side is not turned away until
+  // the reading after them returns); always while the limit is not set.
+  bool newest_acceptable() const {
+    if (limit_mv <= 0.0)
+      return true;
+    const std::size_t k = values_mv.size() - 1;
+    const auto before = kept_before(k);
+    return agrees(k) && (!before || agrees(*before));
+  }
+
+  // Whether reading i lies within the limit of the kept reading before it,
+  // or of the line through the two kept readings before it.
+  bool agrees(std::size_t i) const {
+    const auto a = kept_before(i);
+    if (!a || std::abs(values_mv[i] - values_mv[*a]) <= limit_mv)
+      return true;
+    const auto b = kept_before(*a);
+    if (!b || !(times_s[*a] > times_s[*b]))
+      return false;
+    const double pace = (values_mv[*a] - values_mv[*b]) / (times_s[*a] - times_s[*b]);
+    return std::abs(values_mv[i] - (values_mv[*a] + pace * (times_s[i] - times_s[*a]))) <= limit_mv;
+  }
+
+  // The readings turned away, and the largest departure among them (mV).
+  std::pair<int, double> rejected() const {
+    int count = 0;
+    double largest = 0.0;
+    for (std::size_t j = 0; j < outlier.size(); ++j) {
+      if (outlier[j]) {
+        ++count;
+        largest = std::max(largest, std::abs(departure_mv[j]));
+      }
+    }
+    return {count, largest};
+  }
+};
 
 std::string fixed(double v, int decimals) {
   std::ostringstream s;
@@ -307,7 +448,8 @@ class Titration {
               "; the endpoint is the derivative method's");
         } else {
           say("the " + method_.endpoint_method +
-              " method found no endpoint; the endpoint is the derivative method's");
+              " method found no endpoint; the endpoint is the derivative "
+              "method's");
         }
       }
     }
@@ -446,50 +588,93 @@ class Titration {
   }
 
   /// Reads until the drift rule accepts a reading, then stores the point.
+  /// Outlying readings (see SettlingReadings) are left out of the drift and
+  /// are never the point's signal.
   Result<void> settle_and_record(double volume_ml, drivers::Duration dose_end,
                                  double before_signal) {
     SettlingRule rule = method_.settling;
-    std::vector<double> times;
-    std::vector<double> values;
+    SettlingReadings readings;
+    if (accepted_limits_mv_.size() >= kOutlierCapPoints) {
+      std::vector<double> limits = accepted_limits_mv_;
+      const auto middle = limits.begin() + static_cast<std::ptrdiff_t>(limits.size() / 2);
+      std::nth_element(limits.begin(), middle, limits.end());
+      readings.cap_mv = std::max(kOutlierFloorMv, kOutlierCapFactor * *middle);
+    }
     drivers::PotentialReading last{};
     double drift = 0.0;
     bool slow = false;
+    int past_longest_wait = 0;
+    std::vector<double> wt, wv;
     while (true) {
       if (auto r = check_controls(); !r)
         return r;
       auto reading = inst_.sensor.read();
       if (!reading)
         return reading.error();
-      last = *reading;
-      if (!slow && !signals_.empty() && rule.slow_reaction_factor > 1.0 &&
+      const double t = drivers::to_seconds(inst_.clock.now() - dose_end);
+      // The window of the last window_s seconds, this reading included.
+      std::size_t first = 0;
+      while (first < readings.times_s.size() && t - readings.times_s[first] > rule.window_s + 1e-9)
+        ++first;
+      readings.add(t, reading->potential_mv, first);
+      const bool acceptable = readings.newest_acceptable();
+      if (acceptable)
+        last = *reading;
+      if (!slow && acceptable && !signals_.empty() && rule.slow_reaction_factor > 1.0 &&
           std::abs(reading->potential_mv - before_signal) > rule.slow_change) {
-        // Near the endpoint of a slow metal: wait longer, judge drift over longer.
+        // Near the endpoint of a slow metal: wait longer, judge drift over
+        // longer.
         slow = true;
         rule.min_wait_s *= rule.slow_reaction_factor;
         rule.window_s *= rule.slow_reaction_factor;
       }
-      const double t = drivers::to_seconds(inst_.clock.now() - dose_end);
-      times.push_back(t);
-      values.push_back(reading->potential_mv);
-      // Drift over the readings of the last window_s seconds.
-      std::size_t first = 0;
-      while (t - times[first] > rule.window_s + 1e-9)
+      // Drift over the kept readings of the last window_s seconds (the
+      // window may have just grown).
+      first = 0;
+      while (t - readings.times_s[first] > rule.window_s + 1e-9)
         ++first;
-      const std::vector<double> wt(times.begin() + static_cast<long>(first), times.end());
-      const std::vector<double> wv(values.begin() + static_cast<long>(first), values.end());
+      wt.clear();
+      wv.clear();
+      for (std::size_t j = first; j < readings.times_s.size(); ++j) {
+        if (!readings.outlier[j]) {
+          wt.push_back(readings.times_s[j]);
+          wv.push_back(readings.values_mv[j]);
+        }
+      }
       // The drift is judged over the whole window: over a shorter span the
       // noise alone makes the slope look small or large by chance.
       const bool enough =
           wt.size() >= 3 && wt.back() - wt.front() >= rule.window_s - 0.5 * rule.read_interval_s;
       drift = enough ? least_squares_slope_per_min(wt, wv) : 0.0;
-      if (t >= rule.min_wait_s && enough && std::abs(drift) <= rule.drift_limit_per_min)
+      if (acceptable && t >= rule.min_wait_s && enough &&
+          std::abs(drift) <= rule.drift_limit_per_min)
         break;
       if (t >= rule.max_wait_s) {
-        say("reading at " + fixed(volume_ml, 3) + " mL taken after the longest wait, drift " +
-            fixed(drift, 2) + " mV/min");
-        break;
+        if (acceptable) {
+          say("reading at " + fixed(volume_ml, 3) + " mL taken after the longest wait, drift " +
+              fixed(drift, 2) + " mV/min");
+          break;
+        }
+        // The newest reading is an outlier: read again, a few times.
+        if (++past_longest_wait > kOutlierExtraReadings) {
+          const auto [count, largest] = readings.rejected();
+          return make_error(ErrorKind::device_fault,
+                            "the electrode's readings at " + fixed(volume_ml, 3) +
+                                " mL keep jumping: " + std::to_string(count) +
+                                " readings rejected as outliers (up to " + fixed(largest, 1) +
+                                " mV from the readings before) and none settled; check the "
+                                "electrode, its cable and the stirrer");
+        }
       }
       inst_.clock.sleep_for(from_seconds(rule.read_interval_s));
+    }
+    if (readings.limit_mv > 0.0)
+      accepted_limits_mv_.push_back(readings.limit_mv);
+    if (const auto [count, largest] = readings.rejected(); count > 0) {
+      say("point at " + fixed(volume_ml, 3) + " mL: " + std::to_string(count) +
+          (count == 1 ? " reading" : " readings") + " rejected as " +
+          (count == 1 ? "an outlier" : "outliers") + " (up to " + fixed(largest, 1) +
+          " mV from the kept reading before)");
     }
     store::PointRecord point;
     point.index = static_cast<std::int64_t>(volumes_.size());
@@ -498,7 +683,7 @@ class Titration {
     point.signal = last.potential_mv;
     point.temperature_c = last.temperature_c;
     point.drift_per_min = drift;
-    point.settle_s = times.back();
+    point.settle_s = readings.times_s.back();
     // Durable before the next dose is commanded.
     if (auto stored = store_.append_point(outcome_.run_id, point); !stored) {
       return stored.error();
@@ -617,6 +802,8 @@ class Titration {
   }
 
   Instruments& inst_;
+  // The outlier limit at which each point was taken (SettlingReadings), mV.
+  std::vector<double> accepted_limits_mv_;
   store::RunStore& store_;
   const SampleDescription& sample_;
   const TitrationMethod& method_;
@@ -694,7 +881,8 @@ Result<MetalResult> compute_metal_result(double endpoint_ml, const SampleDescrip
   if (!(s.sample_volume_ml > 0.0) || !(s.titrant_conc_mol_per_l > 0.0) ||
       !std::isfinite(endpoint_ml) || endpoint_ml < 0.0) {
     return make_error(ErrorKind::invalid_input,
-                      "a result needs a sample volume > 0 mL, a titrant concentration > 0 mol/L "
+                      "a result needs a sample volume > 0 mL, a titrant "
+                      "concentration > 0 mol/L "
                       "and a finite endpoint volume >= 0 mL");
   }
   MetalResult r;
