@@ -7,7 +7,7 @@ veq="$1"
 dir="$2"
 rm -rf "$dir" && mkdir -p "$dir"
 db="$dir/lab.sqlite"
-"$veq" demo --in-memory --db "$db" >/dev/null
+"$veq" demo --db "$db" >/dev/null
 printf 'admin-pass-1\n' | "$veq" user add --db "$db" --name admin --role administrator 2>/dev/null
 printf 'admin-pass-1\nreviewer-pass\n' |
   "$veq" user add --db "$db" --name rev --role reviewer --by admin 2>/dev/null

@@ -22,6 +22,12 @@ void add_export_command(CLI::App& app);
 /// `veq report` in a build without Qt: it says so and exits with status 2.
 /// With Qt, main() registers ui/report's command instead.
 void add_report_unavailable_command(CLI::App& app);
+/// `veq series run|check|list|show`: series on the simulator, and stored.
+void add_series_commands(CLI::App& app);
+/// `veq method import|export|list|check`: method files and their versions.
+void add_method_commands(CLI::App& app);
+/// `veq titrant add|list`: titrant solutions and their titers.
+void add_titrant_commands(CLI::App& app);
 /// `veq trials`: endpoint methods on seeded simulated curves (for developers).
 void add_trials_command(CLI::App& app);
 

@@ -1,19 +1,25 @@
-// `veq demo`: three samples of an invented scenario titrated unattended on
-// simulated instruments in virtual time, stored in an SQLite file.
+// `veq demo`: the invented Tuesday rack of a water laboratory run unattended
+// on simulated instruments in virtual time: conditioning, calibration,
+// burette check, blank, titer, four samples (one by back-titration, one
+// failing through an injected electrode fault) and check standards, stored
+// in an SQLite file and printed beside the simulator's hidden truths.
 #include <cmath>
 #include <cstdio>
 #include <iostream>
 #include <memory>
 #include <string>
 
+#include <nlohmann/json.hpp>
+
 #include "controller/cli/commands.hpp"
-#include "controller/run_worker.hpp"
+#include "controller/cli/demo_data.hpp"
+#include "controller/cli/simulated_rack.hpp"
+#include "controller/method/method_file.hpp"
+#include "controller/method/stored_methods.hpp"
+#include "controller/method/titer.hpp"
+#include "controller/series/series_file.hpp"
+#include "controller/series/series_runner.hpp"
 #include "controller/store/sqlite_store.hpp"
-#include "controller/titration.hpp"
-#include "drivers/connection.hpp"
-#include "simulator/bench.hpp"
-#include "simulator/builtin_scenarios.hpp"
-#include "simulator/pseudo_terminal_bench.hpp"
 
 namespace veq::cli {
 
@@ -21,216 +27,241 @@ namespace {
 
 struct DemoOptions {
   std::string db = "veq-demo.sqlite";
-  std::string scenario_file;
   bool verbose = false;
-  bool in_memory = false;
-  /// Device seconds per real second over pseudo-terminals: 100 makes each
-  /// 30-minute titration last about 20 s.
-  double time_scale = 100.0;
+  /// Leave the electrode fault out: every sample then gives a result.
+  bool no_fault = false;
 };
 
-/// One sample of the demo series: what the lab calls it and, hidden from the
-/// controller, what it truly contains.
-struct DemoSample {
-  const char* id;
-  double true_conc_mol_per_l;
-  std::uint64_t seed_offset;
-};
-
-class PrintingObserver final : public controller::RunObserver {
+/// Prints the series as it goes; with --verbose every message of every run.
+class DemoObserver final : public series::SeriesObserver {
  public:
-  PrintingObserver(bool verbose, std::string name) : verbose_(verbose), name_(std::move(name)) {}
-  // Called on each sample's worker thread: one printf per line keeps lines whole.
-  void on_point(const store::PointRecord& p) override {
-    if (!verbose_)
-      return;
-    std::printf("  %s point %3lld  %7.3f mL  %9.3f mV  settled in %4.1f s\n", name_.c_str(),
-                static_cast<long long>(p.index), p.volume_ml, p.signal, p.settle_s);
+  DemoObserver(bool verbose, simulator::SimulatedBench& bench, drivers::Clock& clock,
+               bool inject_fault)
+      : verbose_(verbose), bench_(bench), clock_(clock), inject_fault_(inject_fault) {}
+
+  void on_entry(const std::string& kind, const std::string& label) override {
+    std::printf("  %-15s %-26s", kind.c_str(), label.c_str());
+    std::fflush(stdout);
+    if (verbose_)
+      std::printf("\n");
+    if (inject_fault_ && label == "Millrace well") {
+      // The injected fault: the electrode's reading freezes (a broken
+      // cable inside the shaft) while this sample is measured, and comes
+      // back for the next entry. Sample-specific: the series goes on.
+      simulator::FaultPlan plan;
+      plan.kind = simulator::FaultKind::dead;
+      plan.after_s = clock_.now_s();
+      bench_.set_fault("electrode", plan);
+      faulted_ = true;
+    }
+  }
+  void on_entry_end(const std::string&, const std::string& status,
+                    const std::string& note) override {
+    if (faulted_) {
+      simulator::FaultPlan none;
+      bench_.set_fault("electrode", none);
+      faulted_ = false;
+    }
+    std::printf("%s%s\n", verbose_ ? "  => " : "", status.c_str());
+    if (status != "done" && !note.empty()) {
+      std::size_t start = 0;
+      while (start < note.size()) {
+        const std::size_t end = note.find('\n', start);
+        std::printf("      %s\n", note.substr(start, end - start).c_str());
+        if (end == std::string::npos)
+          break;
+        start = end + 1;
+      }
+    }
   }
   void on_message(const std::string& text) override {
     if (verbose_)
-      std::printf("  %s: %s\n", name_.c_str(), text.c_str());
+      std::printf("      %s\n", text.c_str());
   }
 
  private:
   bool verbose_;
-  std::string name_;
+  simulator::SimulatedBench& bench_;
+  drivers::Clock& clock_;
+  bool inject_fault_;
+  bool faulted_ = false;
 };
 
-/// One sample's devices and clients, on either path.
-struct SampleBench {
-  std::unique_ptr<drivers::Clock> clock;
-  std::unique_ptr<simulator::SimulatedBench> memory;    // --in-memory
-  std::unique_ptr<simulator::PseudoTerminalBench> pty;  // default
-  std::unique_ptr<drivers::Transport> burette_line, electrode_line;
-  std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link;
-  std::unique_ptr<drivers::BuretteClient> burette;
-  std::unique_ptr<drivers::PotentialSensorClient> sensor;
-  std::unique_ptr<controller::Instruments> instruments;
-  double truth_ml = 0.0;
-};
-
-Result<void> build_bench(SampleBench& b, const simulator::Scenario& truth,
-                         const DemoOptions& options) {
-  drivers::BuretteClientOptions burette_options;
-  drivers::Transport* burette_line = nullptr;
-  drivers::Transport* electrode_line = nullptr;
-  if (options.in_memory) {
-    b.clock = std::make_unique<drivers::VirtualClock>();
-    b.memory = std::make_unique<simulator::SimulatedBench>(truth, *b.clock);
-    burette_line = &b.memory->burette_line();
-    electrode_line = &b.memory->electrode_line();
-    b.truth_ml = b.memory->true_equivalence_reading_ml();
-  } else {
-    simulator::PseudoTerminalBenchOptions pty_options;
-    pty_options.time_scale = options.time_scale;
-    auto pty = simulator::PseudoTerminalBench::start(truth, pty_options);
-    if (!pty)
-      return pty.error();
-    b.pty = std::move(pty).value();
-    b.clock = std::make_unique<drivers::ScaledClock>(options.time_scale);
-    auto bl = drivers::open_transport(b.pty->burette_connection());
-    if (!bl)
-      return bl.error();
-    auto el = drivers::open_transport(b.pty->electrode_connection());
-    if (!el)
-      return el.error();
-    b.burette_line = std::move(bl).value();
-    b.electrode_line = std::move(el).value();
-    burette_line = b.burette_line.get();
-    electrode_line = b.electrode_line.get();
-    b.truth_ml = b.pty->true_equivalence_reading_ml();
-    // Time runs faster than real time here: give the burette's host-silence
-    // stop 20 s of device time so that a scheduling pause of the host process
-    // (a fraction of a real second) cannot trip it.
-    burette_options.host_silence_limit_ms = 20000;
-  }
-  b.burette_link = std::make_unique<drivers::DeviceLink>(*burette_line, *b.clock, "burette");
-  b.sensor_link = std::make_unique<drivers::DeviceLink>(*electrode_line, *b.clock, "electrode");
-  b.burette = std::make_unique<drivers::BuretteClient>(*b.burette_link, burette_options);
-  b.sensor = std::make_unique<drivers::PotentialSensorClient>(*b.sensor_link);
-  b.instruments = std::make_unique<controller::Instruments>(
-      controller::Instruments{*b.burette, *b.sensor, *b.clock});
-  return {};
+double sum_mol(const simulator::PositionTruths& t) {
+  double mol = 0.0;
+  for (const auto& [metal, amount] : t.metals_mol)
+    mol += amount;
+  return mol;
 }
 
 int run_demo(const DemoOptions& options) {
-  Result<simulator::Scenario> scenario =
-      options.scenario_file.empty()
-          ? simulator::parse_scenario(simulator::builtin_scenario("demo_calcium"),
-                                      "built-in scenario demo_calcium")
-          : simulator::load_scenario(options.scenario_file);
+  auto scenario = simulator::parse_scenario(demo::kScenario, "veq demo scenario");
   if (!scenario) {
     std::cerr << "veq demo: " << scenario.error().message << "\n";
     return 2;
   }
-  if (!options.in_memory && !(options.time_scale > 0.0 && options.time_scale <= 200.0)) {
-    std::cerr << "veq demo: --time-scale must be above 0 and at most 200\n";
+  auto opened = store::SqliteStore::open(options.db);
+  if (!opened) {
+    std::cerr << "veq demo: " << opened.error().message << "\n";
+    return 2;
+  }
+  auto& store = **opened;
+
+  // The lab's records before the rack starts: the methods, the titrants as
+  // made up, and the calcium standard's titer from earlier in the week.
+  for (const char* text : {demo::kCalciumMethod, demo::kNickelMethod}) {
+    auto m = method::parse_method(text, "demo method");
+    if (!m) {
+      std::cerr << "veq demo: " << m.error().message << "\n";
+      return 2;
+    }
+    if (auto saved = method::save_method(store, *m); !saved) {
+      std::cerr << "veq demo: " << saved.error().message << "\n";
+      return 2;
+    }
+  }
+  for (const auto& [name, lot] :
+       {std::pair<const char*, const char*>{"EDTA 0.01 mol/L", "E-26-118"},
+        std::pair<const char*, const char*>{"calcium standard 0.01 mol/L", "CS-26-041"}}) {
+    store::TitrantRecord t;
+    t.name = name;
+    t.nominal_conc_mol_per_l = 0.0100;
+    t.lot = lot;
+    t.prepared_utc = method::format_utc(
+        std::chrono::time_point_cast<std::chrono::milliseconds>(std::chrono::system_clock::now()) -
+        std::chrono::days{3});
+    if (auto r = store.save_titrant(t); !r) {
+      std::cerr << "veq demo: " << r.error().message << "\n";
+      return 2;
+    }
+  }
+  const auto start =
+      std::chrono::time_point_cast<std::chrono::milliseconds>(std::chrono::system_clock::now());
+  if (auto r = method::record_titer(store, "calcium standard 0.01 mol/L",
+                                    {0.010002, 0.009998, 0.010001}, start - std::chrono::days{1});
+      !r) {
+    std::cerr << "veq demo: " << r.error().message << "\n";
     return 2;
   }
 
+  // The simulated bench, in memory, in virtual time.
+  SimulatedRack rack;
+  if (auto built = rack.build(*scenario); !built) {
+    std::cerr << "veq demo: " << built.error().message << "\n";
+    return 2;
+  }
+  auto& clock = rack.clock;
+  auto& bench = *rack.bench;
+  auto& instruments = *rack.instruments;
+
+  auto parsed = series::parse_series(demo::kSeries, "demo series");
+  if (!parsed) {
+    std::cerr << "veq demo: " << parsed.error().message << "\n";
+    return 2;
+  }
   std::printf("veq demo: %s\n", scenario->name.c_str());
-  if (options.in_memory) {
-    std::printf("  simulated burette and calcium electrode in memory, in virtual time\n");
-  } else {
-    std::printf(
-        "  simulated burette and calcium electrode on pseudo-terminals, %g times real "
-        "time;\n  the three samples are titrated side by side, each on its own thread\n",
-        options.time_scale);
-  }
-  std::printf("  data in %s\n\n", options.db.c_str());
+  std::printf(
+      "  simulated burettes, calcium electrode with pH input, reagent doser, sample changer,\n"
+      "  balance and stirrer, in memory and in virtual time; data in %s\n\n",
+      options.db.c_str());
+  series::SeriesStores stores{store, store, store};
+  series::SeriesOptions series_options;
+  series_options.start_time = start;
+  DemoObserver observer(options.verbose, bench, clock, !options.no_fault);
+  auto outcome =
+      series::run_series(*parsed, demo::kSeries, instruments, stores, series_options, &observer);
 
-  // The lab's view: aliquot volume and titrant label. The true contents are
-  // the simulator's and are printed only for comparison.
-  const DemoSample samples[] = {
-      {"rinse-water-A", scenario->sample.metal_conc_mol_per_l, 0},
-      {"rinse-water-B", scenario->sample.metal_conc_mol_per_l * 0.874, 1},
-      {"rinse-water-C", scenario->sample.metal_conc_mol_per_l * 1.163, 2},
+  // Results beside the hidden truths.
+  const auto truths = bench.truths();
+  const double true_titrant = truths.titrant_true_conc_mol_per_l;
+  std::printf("\nseries %s after %.0f min of simulated time: %s\n",
+              store::series_status_name(outcome.status), clock.now_s() / 60.0,
+              outcome.reason.c_str());
+  std::printf("\n%-26s %-9s %14s %-10s %14s %9s\n", "entry", "status", "found", "unit", "true",
+              "found-true");
+  auto row = [](const std::string& label, const std::string& status, std::optional<double> found,
+                const std::string& unit, std::optional<double> truth) {
+    std::printf("%-26s %-9s ", label.c_str(), status.c_str());
+    if (found)
+      std::printf("%14.6g %-10s ", *found, unit.c_str());
+    else
+      std::printf("%14s %-10s ", "-", unit.c_str());
+    if (truth && found)
+      std::printf("%14.6g %+8.2f %%\n", *truth, (*found - *truth) / *truth * 100.0);
+    else if (truth)
+      std::printf("%14.6g\n", *truth);
+    else
+      std::printf("\n");
   };
-  constexpr int kSamples = 3;
-  SampleBench benches[kSamples];
-  simulator::Scenario truths[kSamples];
-  controller::SampleDescription descriptions[kSamples];
-  // One store connection per worker: each run writes through its own.
-  std::unique_ptr<store::SqliteStore> stores[kSamples];
-  std::unique_ptr<PrintingObserver> observers[kSamples];
-  std::unique_ptr<controller::RunWorker> workers[kSamples];
-  controller::TitrationMethod method;
-  method.name = "calcium, fixed 0.05 mL increments";
-  for (int i = 0; i < kSamples; ++i) {
-    const auto& s = samples[i];
-    truths[i] = *scenario;
-    truths[i].sample.metal_conc_mol_per_l = s.true_conc_mol_per_l;
-    truths[i].seed = scenario->seed + s.seed_offset;
-    auto opened = store::SqliteStore::open(options.db);
-    if (!opened) {
-      std::cerr << "veq demo: " << opened.error().message << "\n";
-      return 2;
+  double blank_ml = 0.0;
+  double titer = 1.0;
+  for (const auto& e : outcome.entries) {
+    std::optional<double> truth;
+    int first_position = 0;
+    for (const auto& s : parsed->entries)
+      if (e.label.rfind(s.id, 0) == 0 && !s.positions.empty())
+        first_position = s.positions.front();
+    switch (e.kind) {
+      case series::EntryKind::calibration:
+        truth = 0.98 * 1000.0 * 8.314462618 * 298.15 * std::log(10.0) / (2.0 * 96485.33212);
+        break;
+      case series::EntryKind::burette_check:
+        truth = 10.0;
+        break;
+      case series::EntryKind::blank:
+        truth = 2.0e-6 / true_titrant * 1000.0;
+        if (e.mean)
+          blank_ml = *e.mean;
+        break;
+      case series::EntryKind::titer:
+        truth = true_titrant;
+        if (e.mean)
+          titer = *e.mean / 0.0100;
+        break;
+      case series::EntryKind::sample:
+      case series::EntryKind::check_standard: {
+        const auto t = bench.position_truths(first_position);
+        const double mol_per_l = sum_mol(t) / 0.050;
+        truth = e.unit == "mg/L" ? mol_per_l * 58.693 * 1000.0 : mol_per_l * 1000.0;
+        break;
+      }
+      case series::EntryKind::conditioning:
+        break;
     }
-    stores[i] = std::move(opened).value();
-    if (auto built = build_bench(benches[i], truths[i], options); !built) {
-      std::cerr << "veq demo: cannot set up the simulated bench: " << built.error().message << "\n";
-      return 2;
-    }
-    auto& d = descriptions[i];
-    d.sample_id = s.id;
-    d.series = "demo";
-    d.sample_volume_ml = truths[i].sample.volume_ml;
-    d.metal = truths[i].sample.metal;
-    d.titrant_name = truths[i].titrant.name;
-    d.titrant_conc_mol_per_l = truths[i].titrant.label_conc_mol_per_l;
-    controller::TitrationMethod m = method;
-    m.max_volume_ml =
-        std::min(40.0, 2.5 * truths[i].sample.metal_conc_mol_per_l * truths[i].sample.volume_ml /
-                           truths[i].titrant.label_conc_mol_per_l);
-    // Over pseudo-terminals at 100 times real time every millisecond the host
-    // waits for the machine counts as a tenth of a device second: on a busy
-    // computer a run can take far more device time than on a bench, so the
-    // time limit must not be what ends the demo.
-    if (!options.in_memory)
-      m.time_limit_s = 24.0 * 3600.0;
-    observers[i] = std::make_unique<PrintingObserver>(options.verbose, s.id);
-    workers[i] = std::make_unique<controller::RunWorker>(*benches[i].instruments, *stores[i], d, m,
-                                                         observers[i].get());
-    if (options.in_memory) {
-      // Virtual time: one after another, deterministic.
-      workers[i]->start();
-      workers[i]->wait();
-    }
+    row(e.label, e.status, e.kind == series::EntryKind::conditioning ? std::nullopt : e.mean,
+        e.unit, truth);
   }
-  if (!options.in_memory) {
-    for (auto& w : workers)
-      w->start();
-  }
-
-  int failures = 0;
-  for (int i = 0; i < kSamples; ++i) {
-    const auto outcome = workers[i]->wait();
-    const auto& sample = descriptions[i];
-    const double truth_ml = benches[i].truth_ml;
-    const double true_mmol_per_l = truths[i].sample.metal_conc_mol_per_l * 1000.0;
-    std::printf("sample %d/3  %s  (%.2f mL aliquot, %s %.4f mol/L)\n", i + 1,
-                sample.sample_id.c_str(), sample.sample_volume_ml, sample.titrant_name.c_str(),
-                sample.titrant_conc_mol_per_l);
-    if (outcome.status != store::RunStatus::completed || !outcome.result) {
-      ++failures;
-      std::printf("  FAILED after %zu points: %s\n", outcome.point_count, outcome.reason.c_str());
-    } else {
-      const auto& r = *outcome.result;
-      std::printf(
-          "  endpoint      %8.3f mL  (+/- %.4f mL)  simulator's true equivalence %8.3f mL"
-          "  (%+.3f %%)\n",
-          r.endpoint_ml, outcome.endpoint->uncertainty_ml, truth_ml,
-          100.0 * (r.endpoint_ml - truth_ml) / truth_ml);
-      std::printf("  %-12s  %8.3f mmol/L = %.1f mg/L    true content %8.3f mmol/L\n",
-                  sample.metal.c_str(), r.conc_mmol_per_l, r.conc_mg_per_l, true_mmol_per_l);
-      std::printf("  %zu points; %s\n", outcome.point_count, outcome.reason.c_str());
+  // What titer and blank did: the calcium samples computed with the label
+  // and no blank.
+  std::printf(
+      "\nWithout the titer (%.4f) and the blank (%.4f mL), the same endpoints would give:\n", titer,
+      blank_ml);
+  for (const auto& e : outcome.entries) {
+    if (e.kind != series::EntryKind::sample || !e.mean || e.unit != "mmol/L")
+      continue;
+    double sum = 0.0;
+    int n = 0;
+    auto determinations = store.load_determinations(e.entry_id);
+    if (!determinations)
+      continue;
+    for (const auto& d : *determinations) {
+      if (!d.counted)
+        continue;
+      const auto detail = nlohmann::json::parse(d.detail_json, nullptr, false);
+      if (!detail.is_object() || !detail.contains("reacted_ml"))
+        continue;
+      sum += detail["reacted_ml"].get<double>() * 0.0100 / 50.0 * 1000.0;
+      ++n;
     }
-    std::printf("  stored as run %lld in %s\n\n", static_cast<long long>(outcome.run_id),
-                options.db.c_str());
+    if (n > 0)
+      std::printf("  %-26s %10.4f mmol/L instead of %.4f\n", e.label.c_str(), sum / n, *e.mean);
   }
-  std::printf("Look at the stored runs with: veq runs --db %s\n", options.db.c_str());
-  return failures == 0 ? 0 : 1;
+  std::printf("\nThe series, its runs and every point are in %s:\n", options.db.c_str());
+  std::printf("  veq series list --db %s\n  veq series show --db %s --series %lld\n",
+              options.db.c_str(), options.db.c_str(), static_cast<long long>(outcome.series_id));
+  if (!outcome.burettes_stopped)
+    std::printf("WARNING: a burette did not confirm its stop\n");
+  return outcome.status == store::SeriesStatus::completed ? 0 : 1;
 }
 
 }  // namespace
@@ -239,21 +270,16 @@ void add_demo_command(CLI::App& app) {
   auto options = std::make_shared<DemoOptions>();
   CLI::App* demo = app.add_subcommand(
       "demo",
-      "Titrate a short unattended series of three invented samples on simulated instruments\n"
-      "(a burette and a calcium electrode speaking veq's protocol over pseudo-terminals, faster\n"
-      "than real time; or in memory in virtual time), store every point in an SQLite file, and\n"
-      "print each endpoint beside the simulator's truth.");
-  demo->add_option("--db", options->db, "SQLite file to store the runs in (created if absent)")
+      "Run an invented water laboratory's rack unattended on simulated instruments in virtual\n"
+      "time: electrode conditioning, calibration, a gravimetric burette check, a blank, the\n"
+      "titer of the EDTA, four samples in duplicate (one by back-titration, one failing through\n"
+      "an injected electrode fault) and check standards. Everything is stored in an SQLite\n"
+      "file, and the results are printed beside the simulator's hidden truths.");
+  demo->add_option("--db", options->db, "SQLite file to store the series in (created if absent)")
       ->capture_default_str();
-  demo->add_option("--scenario", options->scenario_file,
-                   "scenario file (JSON, see docs/scenarios.md) instead of the built-in one");
-  demo->add_flag("--verbose", options->verbose, "print every point and device message");
-  demo->add_flag("--in-memory", options->in_memory,
-                 "talk to the simulated devices in memory in virtual time (fast, deterministic) "
-                 "instead of over pseudo-terminals");
-  demo->add_option("--time-scale", options->time_scale,
-                   "over pseudo-terminals: simulated seconds per real second (at most 200)")
-      ->capture_default_str();
+  demo->add_flag("--verbose", options->verbose, "print what every step and run does");
+  demo->add_flag("--no-fault", options->no_fault,
+                 "leave out the injected electrode fault (every sample then gives a result)");
   demo->callback([options] {
     const int code = run_demo(*options);
     if (code != 0)

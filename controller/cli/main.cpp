@@ -24,6 +24,9 @@ int main(int argc, char** argv) {
   veq::cli::add_evaluate_commands(app);
   veq::cli::add_run_command(app);
   veq::cli::add_trials_command(app);
+  veq::cli::add_series_commands(app);
+  veq::cli::add_method_commands(app);
+  veq::cli::add_titrant_commands(app);
   veq::cli::add_audit_commands(app);
   veq::cli::add_export_command(app);
 #if VEQ_WITH_REPORT

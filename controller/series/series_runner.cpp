@@ -282,7 +282,7 @@ class SeriesRun {
         if (aborted())
           return Failure{Reach::series, "aborted by the operator"};
         if (next_position >= positions.size()) {
-          flag("no spare position left for determination " + std::to_string(slot + 1));
+          flag("replicate " + std::to_string(slot + 1) + ": no spare position left");
           break;
         }
         const std::size_t portion_index = next_position;
@@ -319,11 +319,11 @@ class SeriesRun {
           d.detail_json = json{{"reason", failure->reason}}.dump();
           if (auto f = store_determination(d))
             return f;
-          notes_.push_back("determination " + std::to_string(replicate_no) + " (position " +
-                           std::to_string(position) + "): " + failure->reason);
+          notes_.push_back("replicate " + std::to_string(slot + 1) + ", vessel at position " +
+                           std::to_string(position) + ": " + failure->reason);
           if (failure->reach == Reach::determination && repeats_left_for_slot-- > 0)
             continue;  // repeated once on the next spare position
-          flag("determination " + std::to_string(replicate_no) + " left out: " + failure->reason);
+          flag("replicate " + std::to_string(slot + 1) + " gave no value");
           break;
         }
         d.value = value->value;
