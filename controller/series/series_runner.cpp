@@ -169,6 +169,7 @@ class SeriesRun {
     eo.entry_id = *entry_id;
     entry_ = &eo;
     notes_.clear();
+    flags_.clear();
 
     std::optional<Failure> stop;
     switch (entry.kind) {

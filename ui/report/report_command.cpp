@@ -54,7 +54,16 @@ void make_report(const ReportCommandOptions& o) {
                 o.out.c_str());
     return;
   }
-  auto data = series_report_data(sources, o.series, o.report);
+  // A series the series runner stored: its entries (blank, titer, check
+  // standards told apart); else every run stored under that series name.
+  std::int64_t stored_id = 0;
+  if (auto all = (*store)->list_series(); all) {
+    for (const auto& s : *all)
+      if (s.name == o.series)
+        stored_id = s.id;  // the latest of that name
+  }
+  auto data = stored_id > 0 ? stored_series_report_data(sources, **store, stored_id, o.report)
+                            : series_report_data(sources, o.series, o.report);
   if (!data)
     throw CLI::Error("ReportError", data.error().message, 2);
   if (auto w = write_series_report(*data, o.out); !w)

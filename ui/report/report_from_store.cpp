@@ -7,6 +7,8 @@
 #include <optional>
 #include <utility>
 
+#include <nlohmann/json.hpp>
+
 #include "common/version.hpp"
 #include "controller/audit/audit.hpp"
 #include "controller/lab_checks.hpp"
@@ -402,6 +404,103 @@ veq::Result<SeriesReportData> series_report_data(const ReportSources& sources,
   s.notes.push_back(
       "Filled from the store: every run of the series is a sample replicate; check standards, "
       "blanks and titers are not told apart in the store yet.");
+  s.generated_utc = controller::audit::now_utc();
+  s.report_software = kVersion;
+  return s;
+}
+
+}  // namespace veq::report
+
+namespace veq::report {
+
+veq::Result<SeriesReportData> stored_series_report_data(const ReportSources& sources,
+                                                        store::SeriesStore& series,
+                                                        std::int64_t series_id,
+                                                        const ReportOptions& options) {
+  auto record = series.load_series(series_id);
+  if (!record)
+    return record.error();
+  auto entries = series.load_entries(series_id);
+  if (!entries)
+    return entries.error();
+  SeriesReportData s;
+  s.series_name = record->name;
+  s.started_utc = record->started_utc;
+  s.finished_utc = record->finished_utc;
+  s.notes.push_back("Series " + std::string(store::series_status_name(record->status)) + ": " +
+                    record->reason + ".");
+  std::vector<std::int64_t> run_ids;
+  for (const auto& e : *entries) {
+    auto determinations = series.load_determinations(e.id);
+    auto results = series.load_entry_results(e.id);
+    if (!determinations)
+      return determinations.error();
+    if (!results)
+      return results.error();
+    if (s.method_name.empty() && !e.method_name.empty() && e.kind == "sample") {
+      s.method_name = e.method_name;
+      s.method_version = std::to_string(e.method_version);
+    } else if (!e.method_name.empty() && e.kind == "sample" &&
+               (e.method_name != s.method_name ||
+                std::to_string(e.method_version) != s.method_version)) {
+      s.notes.push_back(e.label + ": method " + e.method_name + ", version " +
+                        std::to_string(e.method_version) + ".");
+    }
+    std::vector<std::int64_t> ids;
+    std::vector<double> values;
+    for (const auto& d : *determinations) {
+      if (d.run_id > 0)
+        run_ids.push_back(d.run_id);
+      if (d.second_run_id > 0)
+        run_ids.push_back(d.second_run_id);
+      if (d.counted && !d.unit.empty()) {
+        ids.push_back(d.second_run_id > 0 ? d.second_run_id : d.run_id);
+        values.push_back(d.value);
+      }
+    }
+    if (e.status != "done")
+      s.flagged.push_back(e.kind + " '" + e.label + "': " + e.status +
+                          (e.note.empty() ? "" : " (" + e.note + ")"));
+    if (results->empty())
+      continue;
+    const auto& r = results->front();
+    if (e.kind == "blank")
+      s.blank =
+          fixed(r.value, 4) + " mL, mean of " + std::to_string(r.count) + " (" + e.label + ")";
+    if (e.kind == "titer")
+      s.titer = fixed(r.value, 6) + " mol/L, mean of " + std::to_string(r.count) +
+                " determinations, RSD " + fixed(r.rsd_percent, 3) + " %";
+    if (e.kind == "check standard") {
+      const auto detail = nlohmann::json::parse(r.detail_json, nullptr, false);
+      if (detail.is_object() && detail.contains("expected")) {
+        auto row = make_check_standard_row(e.label, ids.empty() ? 0 : ids.front(), r.unit,
+                                           detail["expected"].get<double>(), r.value,
+                                           detail["tolerance_percent"].get<double>());
+        if (row)
+          s.check_standards.push_back(std::move(*row));
+      }
+    }
+    if (values.empty() || e.kind == "calibration" || e.kind == "burette check")
+      continue;
+    auto row = make_replicate_row(e.label, e.kind, r.name, r.unit, ids, values, r.flags);
+    if (!row)
+      return row.error();
+    s.samples.push_back(std::move(*row));
+  }
+  if (s.blank.empty())
+    s.blank = "none in this series";
+  if (s.titer.empty())
+    s.titer = "determined before this series (see each run)";
+  for (std::int64_t id : run_ids) {
+    auto d = run_report_data(sources, id, options);
+    if (!d)
+      return d.error();
+    s.runs.push_back(std::move(*d));
+  }
+  if (!s.runs.empty()) {
+    s.titrant_name = s.runs.front().titrant_name;
+    s.titrant_conc_mol_per_l = s.runs.front().titrant_conc_mol_per_l;
+  }
   s.generated_utc = controller::audit::now_utc();
   s.report_software = kVersion;
   return s;

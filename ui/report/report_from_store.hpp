@@ -9,6 +9,7 @@
 #include "controller/store/audit_trail.hpp"
 #include "controller/store/method_store.hpp"
 #include "controller/store/run_store.hpp"
+#include "controller/store/series_store.hpp"
 #include "ui/report/report_data.hpp"
 
 namespace veq::report {
@@ -58,5 +59,15 @@ veq::Result<RunReportData> run_report_data(const ReportSources& sources, std::in
 veq::Result<SeriesReportData> series_report_data(const ReportSources& sources,
                                                  const std::string& series,
                                                  const ReportOptions& options = {});
+
+/// A series report from a series the series runner stored (SeriesStore):
+/// every sample, blank, titer and check-standard entry with its counted
+/// values and statistics, the check standards against their expected
+/// values, every flagged entry and its notes, and each titration's pages.
+/// Error not_found when the store holds no such series.
+veq::Result<SeriesReportData> stored_series_report_data(const ReportSources& sources,
+                                                        store::SeriesStore& series,
+                                                        std::int64_t series_id,
+                                                        const ReportOptions& options = {});
 
 }  // namespace veq::report
