@@ -20,8 +20,16 @@ std::atomic<long> allocations{0};
 }  // namespace
 
 // AddressSanitizer owns operator new in a sanitizer build; replacing it there
-// mixes allocators. The count is taken in the ordinary build.
-#ifndef __SANITIZE_ADDRESS__
+// mixes allocators. The count is taken in the ordinary build. g++ says
+// __SANITIZE_ADDRESS__; clang 14 says only __has_feature(address_sanitizer).
+#if defined(__SANITIZE_ADDRESS__)
+#define VEQ_ADDRESS_SANITIZER 1
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer)
+#define VEQ_ADDRESS_SANITIZER 1
+#endif
+#endif
+#ifndef VEQ_ADDRESS_SANITIZER
 #define VEQ_COUNT_ALLOCATIONS 1
 
 void* operator new(std::size_t size) {
