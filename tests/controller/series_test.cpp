@@ -11,6 +11,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "controller/cli/demo_data.hpp"
 #include "controller/lab_checks.hpp"
 #include "tests/controller/series_bench.hpp"
 
@@ -369,6 +370,133 @@ TEST(Series, ARefusedCalibrationStopsTheSeries) {
   ASSERT_TRUE(calibrations.has_value());
   ASSERT_EQ(calibrations->size(), 1u);
   EXPECT_FALSE((*calibrations)[0].accepted);  // stored, so that the history shows it
+}
+
+}  // namespace
+}  // namespace veq::series
+
+namespace veq::series {
+namespace {
+
+/// The demo's rack (controller/cli/demo_data.hpp): the calcium method and
+/// the nickel back-titration with its pH adjustment.
+struct DemoRack {
+  SeriesBench bench;
+  DemoRack() : bench(cli::demo::kScenario) {
+    for (const char* text : {cli::demo::kCalciumMethod, cli::demo::kNickelMethod}) {
+      auto m = method::parse_method(text, "demo method");
+      EXPECT_TRUE(m.has_value());
+      EXPECT_TRUE(method::save_method(*bench.store, *m).has_value());
+    }
+    for (const char* name : {"EDTA 0.01 mol/L", "calcium standard 0.01 mol/L"}) {
+      store::TitrantRecord t;
+      t.name = name;
+      t.nominal_conc_mol_per_l = 0.0100;
+      t.lot = "demo";
+      t.prepared_utc = "2026-12-01T07:00:00.000Z";
+      EXPECT_TRUE(bench.store->save_titrant(t).has_value());
+    }
+    EXPECT_TRUE(method::record_titer(*bench.store, "calcium standard 0.01 mol/L",
+                                     {0.010002, 0.009998, 0.010001},
+                                     method::parse_utc("2026-12-02T07:00:00Z").value())
+                    .has_value());
+    bench.instruments->burettes["burette 2"] = second.get();
+    bench.instruments->pumps["doser 2"] = Pump{bench.doser.get(), drivers::Reagent::acid};
+    bench.instruments->pumps["doser 3"] = Pump{bench.doser.get(), drivers::Reagent::base};
+  }
+  std::unique_ptr<drivers::DeviceLink> second_link = std::make_unique<drivers::DeviceLink>(
+      bench.bench->second_burette_line(), bench.clock, "burette 2");
+  std::unique_ptr<drivers::BuretteClient> second = [this] {
+    auto c = std::make_unique<drivers::BuretteClient>(*second_link);
+    EXPECT_TRUE(c->identify().has_value());
+    return c;
+  }();
+};
+
+const std::string kNickelSeries =
+    "[series]\nname = nickel\n[calibration]\nelectrode = calcium electrode 1\nstandards = "
+    "0.0001, 0.001, 0.01 mol/L\npositions = 2, 3, 4\n[blank]\nmethod = calcium in drinking "
+    "water\npositions = 6, 7\naliquots = 50 mL\n[titer]\ntitrant = EDTA 0.01 mol/L\nmethod "
+    "= calcium in drinking water\nstandard molar mass = 100.0869 g/mol\npurity = 99.95 %\nmasses "
+    "= 0.01500, 0.01480, 0.01520 g\npositions = 8, 9, 10\n[sample]\nid = Brassworks rinse tank "
+    "3\nmethod = nickel in rinse water by back-titration\npositions = 20, 21, 22\naliquots = 50 "
+    "mL\n";
+
+TEST(Series, BackTitrationAfterAPhAdjustmentFindsTheNickel) {
+  DemoRack rack;
+  auto outcome = rack.bench.run(kNickelSeries);
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* nickel = find_entry(outcome, "Brassworks rinse tank 3");
+  ASSERT_NE(nickel, nullptr);
+  EXPECT_EQ(nickel->status, "done") << nickel->note;
+  // Hidden truth: 0.95 mmol/L of nickel, 58.693 g/mol (IUPAC) = 55.758 mg/L.
+  // The excess EDTA counts with its titer (0.985, found against calcium
+  // carbonate after the blank: without the blank the titer, and with it the
+  // nickel, would be 2.7 % low), the calcium standard with its own.
+  EXPECT_NEAR(*nickel->mean, 0.95 * 58.693, 0.95 * 58.693 * 0.002);
+  ASSERT_EQ(nickel->run_ids.size(), 2u);  // one back-titration run per vessel
+  auto d = rack.bench.store->load_determinations(nickel->entry_id);
+  ASSERT_TRUE(d.has_value());
+  const auto detail = json::parse((*d)[0].detail_json);
+  EXPECT_EQ(detail["excess_ml"].get<double>(), 10.0);
+  // The pH was brought from 3 to 10 (within 0.2) before the back-titration.
+  EXPECT_NEAR(rack.bench.bench->truths().vessel_ph, 10.0, 0.25);
+}
+
+TEST(Series, APhThatCannotBeReachedFailsThatSampleOnly) {
+  DemoRack rack;
+  // Only 1 mL of ammonia allowed: the vessel's buffer capacity needs about
+  // 1.4 mL of 1 mol/L base to go from pH 3 to 10.
+  std::string method = cli::demo::kNickelMethod;
+  const std::string from = "largest total volume = 4 mL";
+  method.replace(method.find(from), from.size(), "largest total volume = 1 mL");
+  auto m = method::parse_method(method, "tight method");
+  ASSERT_TRUE(m.has_value());
+  ASSERT_TRUE(method::save_method(*rack.bench.store, *m).has_value());
+  auto outcome = rack.bench.run(
+      kNickelSeries +
+      "[sample]\nid = Ferncombe spring\nmethod = calcium in drinking water\npositions = 11, "
+      "12\naliquots = 50 mL\n");
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* nickel = find_entry(outcome, "Brassworks rinse tank 3");
+  ASSERT_NE(nickel, nullptr);
+  EXPECT_EQ(nickel->status, "failed");
+  EXPECT_NE(nickel->note.find("not brought to 10.00"), std::string::npos) << nickel->note;
+  EXPECT_EQ(find_entry(outcome, "Ferncombe spring")->status, "done");
+}
+
+TEST(Series, ADoserFaultStopsTheSeries) {
+  SeriesBench b;
+  b.prepare_lab();
+  FaultAtEntry fault("well 2", [&] {
+    simulator::FaultPlan plan;
+    plan.kind = simulator::FaultKind::silence;
+    plan.after_s = b.clock.now_s();
+    b.bench->set_fault("auxiliary_doser", plan);
+  });
+  auto outcome = b.run(series_with(kTwoSamples), &fault);
+  expect_clean_stop(b, outcome, "doser");
+}
+
+TEST(Series, AnExpiredCalibrationStopsTheSeriesBeforeTheSample) {
+  SeriesBench b;
+  b.prepare_lab();
+  // Calibrated two days before the series: valid 24 h.
+  store::CalibrationRecord old;
+  old.electrode = "calcium electrode 1";
+  old.slope_mv_per_decade = 29.0;
+  old.e0_mv = 150.0;
+  old.accepted = true;
+  old.measured_utc = "2026-12-01T07:00:00.000Z";
+  old.expires_utc = "2026-12-02T07:00:00.000Z";
+  ASSERT_TRUE(b.store->add_calibration(old).has_value());
+  ASSERT_TRUE(method::record_titer(*b.store, "EDTA 0.01 mol/L", {0.00985, 0.00986, 0.00985},
+                                   method::parse_utc("2026-12-02T07:00:00Z").value())
+                  .has_value());
+  auto outcome = b.run("[series]\nname = old calibration\n" + kTwoSamples);
+  expect_clean_stop(b, outcome, "calibration");
+  EXPECT_NE(outcome.reason.find("expired"), std::string::npos) << outcome.reason;
+  EXPECT_TRUE(b.store->list_runs()->empty());
 }
 
 }  // namespace
