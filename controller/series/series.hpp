@@ -33,6 +33,10 @@ std::optional<EntryKind> entry_kind_from_name(std::string_view name);
 struct Portion {
   double aliquot_ml = 0.0;  ///< mL; 0 for a weighed portion
   double mass_g = 0.0;      ///< g; 0 for an aliquot
+  /// The mass is read from the balance when the portion is weighed
+  /// (weighing.hpp) before the series runs; until then, and if the balance
+  /// never settled, mass_g is 0 and the determination cannot be made.
+  bool from_balance = false;
   bool operator==(const Portion&) const = default;
 };
 

@@ -113,6 +113,32 @@ const std::vector<std::string_view> kSections = {"series",        "sample",     
 
 /// The portions of a sample-like entry: "aliquots" (mL) or "masses" (g).
 void read_portions(Reader& r, Entry& entry, bool required) {
+  if (auto* e = r.find("masses"); e && lower(e->value).find("balance") != std::string::npos) {
+    // Weighed on the connected balance before the series (weighing.hpp):
+    // "balance" for every position, or a list where "balance" marks the
+    // portions still to weigh (or that the balance could not weigh).
+    if (r.find("aliquots"))
+      r.errors().add(r.line_of("masses"), "masses",
+                     "give either aliquots or masses for an entry, not both");
+    if (lower(trim(e->value)) == "balance") {
+      for (std::size_t i = 0; i < entry.positions.size(); ++i)
+        entry.portions.push_back(Portion{0.0, 0.0, true});
+      return;
+    }
+    for (const auto& item : split_commas(e->value)) {
+      if (lower(item) == "balance") {
+        entry.portions.push_back(Portion{0.0, 0.0, true});
+        continue;
+      }
+      const bool bare = item.find_first_not_of("0123456789.eE+-") == std::string::npos;
+      auto v = r.parse_quantity(bare ? item + " g" : item, e->line, "masses", kMass);
+      if (!v)
+        return;
+      r.check_range(*v, e->line, "masses", 0.0, 1000.0, true, kMass);
+      entry.portions.push_back(Portion{0.0, *v, true});
+    }
+    return;
+  }
   auto aliquots = quantity_list(r, "aliquots", kVolume, 0.0, 1000.0, true);
   auto masses = quantity_list(r, "masses", kMass, 0.0, 1000.0, true);
   if (!aliquots.empty() && !masses.empty()) {
@@ -217,7 +243,8 @@ Result<Series> parse_series(std::string_view text, const std::string& origin) {
         entry.titrant_per_standard =
             r.quantity("titrant per standard", kNone, 0.0, 10.0, 1.0, true);
         read_portions(r, entry, false);
-        if (entry.portions.empty() || entry.portions.front().mass_g <= 0.0)
+        if (entry.portions.empty() ||
+            (entry.portions.front().mass_g <= 0.0 && !entry.portions.front().from_balance))
           errors.add(section.line, "masses", "a titer entry needs the masses of its standards (g)");
         break;
       case EntryKind::calibration:
@@ -325,10 +352,22 @@ std::string write_series(const Series& s) {
       std::vector<double> values;
       for (const auto& p : e.portions)
         values.push_back(p.mass_g > 0.0 ? p.mass_g : p.aliquot_ml);
-      if (e.portions.front().mass_g > 0.0)
+      bool all_to_weigh = true;
+      for (const auto& p : e.portions)
+        all_to_weigh = all_to_weigh && p.from_balance && p.mass_g <= 0.0;
+      if (all_to_weigh) {
+        put("masses", "balance");
+      } else if (e.portions.front().from_balance) {
+        std::string list;
+        for (const auto& p : e.portions)
+          list += (list.empty() ? "" : ", ") +
+                  (p.mass_g > 0.0 ? number(p.mass_g) + " g" : std::string("balance"));
+        put("masses", list);
+      } else if (e.portions.front().mass_g > 0.0) {
         put("masses", list_text(values, "g"));
-      else
+      } else {
         put("aliquots", list_text(values, "mL"));
+      }
     }
     switch (e.kind) {
       case EntryKind::sample:

@@ -291,7 +291,14 @@ class SeriesRun {
         ++replicate_no;
         Measured got;
         got.position = position;
-        auto failure = measure(entry, m, position, portion_for(portion_index), got, ready);
+        const Portion portion = portion_for(portion_index);
+        std::optional<Failure> failure;
+        if (portion.from_balance && !(portion.mass_g > 0.0))
+          failure = Failure{Reach::determination,
+                            "no mass for this portion: it was not weighed, or the balance did "
+                            "not settle when it was"};
+        else
+          failure = measure(entry, m, position, portion, got, ready);
         store::DeterminationRecord d;
         d.entry_id = entry_->entry_id;
         d.replicate = replicate_no;
