@@ -12,12 +12,15 @@
 
 #include "controller/cli/commands.hpp"
 #include "controller/cli/simulated_rack.hpp"
+#include "controller/cli/stop_after_interruption.hpp"
 #include "controller/method/method_file.hpp"
 #include "controller/method/stored_methods.hpp"
 #include "controller/method/titer.hpp"
 #include "controller/series/series_file.hpp"
 #include "controller/series/series_runner.hpp"
+#include "controller/series/weighing.hpp"
 #include "controller/store/sqlite_store.hpp"
+#include "drivers/connection.hpp"
 
 namespace veq::cli {
 
@@ -84,6 +87,10 @@ int run_series_file(const SeriesRunOptions& o) {
   SimulatedRack rack;
   if (auto built = rack.build(*scenario); !built)
     fail(built.error().message);
+  if (auto stopped =
+          stop_burettes_after_interruption(*rack.instruments, store->interrupted_on_open());
+      !stopped)
+    fail(stopped.error().message);
   series::SeriesStores stores{*store, *store, *store};
   PrintingSeriesObserver observer(o.verbose);
   std::printf("series '%s' on the simulated bench of '%s', virtual time; data in %s\n",
@@ -241,6 +248,51 @@ void add_series_commands(CLI::App& app) {
     for (const auto& e : s->entries)
       std::printf("  %-15s %-26s %zu positions\n", series::entry_kind_name(e.kind), e.id.c_str(),
                   e.positions.size());
+  });
+
+  struct WeighOptions {
+    std::string file;
+    std::string balance;
+    std::string out;
+  };
+  auto weigh = std::make_shared<WeighOptions>();
+  CLI::App* w = group->add_subcommand(
+      "weigh",
+      "Weigh the portions a series file marks 'masses = balance' on a connected balance: for\n"
+      "each, put the empty vessel on the pan and press Enter (veq tares), add the portion and\n"
+      "press Enter (veq reads the settled net mass). The series is written with the masses.");
+  w->add_option("file", weigh->file, "series file")->required();
+  w->add_option("--balance", weigh->balance,
+                "balance connection: serial:/dev/ttyUSB0?baud=9600 or tcp:host:port")
+      ->required();
+  w->add_option("--out", weigh->out, "series file to write (default: the same file)");
+  w->callback([weigh] {
+    auto s = series::read_series_file(weigh->file);
+    if (!s)
+      fail(s.error().message);
+    auto line = drivers::open_transport(weigh->balance);
+    if (!line)
+      fail(line.error().message);
+    drivers::SteadyClock clock;
+    drivers::DeviceLink link(**line, clock, "balance");
+    drivers::BalanceClient balance(link);
+    if (auto info = balance.identify(); !info)
+      fail("the balance does not answer: " + info.error().message);
+    auto outcome = series::weigh_portions(*s, balance, clock, [](const std::string& instruction) {
+      std::printf("%s Press Enter when done.\n", instruction.c_str());
+      std::fflush(stdout);
+      std::string ignored;
+      std::getline(std::cin, ignored);
+    });
+    for (const auto& note : outcome.notes)
+      std::printf("  %s\n", note.c_str());
+    const std::string out = weigh->out.empty() ? weigh->file : weigh->out;
+    std::ofstream file(out, std::ios::binary);
+    file << series::write_series(*s);
+    if (!file)
+      fail("cannot write '" + out + "'");
+    std::printf("%d portions weighed, %d without a mass; series written to %s\n", outcome.weighed,
+                outcome.failed, out.c_str());
   });
 
   auto db = std::make_shared<std::string>(store::default_database_path());
