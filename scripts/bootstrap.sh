@@ -44,7 +44,10 @@ install_missing() {
 build() {
   local launcher=()
   if command -v ccache >/dev/null 2>&1; then launcher=(-DCMAKE_CXX_COMPILER_LAUNCHER=ccache); fi
-  cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=RelWithDebInfo -DVEQ_WERROR=ON "${launcher[@]}"
+  # Optimised like RelWithDebInfo (-O2) but without debug information: -g
+  # costs about a quarter of the build's time on 2 cores (DEVELOPERS.md, CI).
+  cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release "-DCMAKE_CXX_FLAGS_RELEASE=-O2 -DNDEBUG" \
+    -DVEQ_WERROR=ON "${launcher[@]}"
   cmake --build build --parallel "$(nproc)"
 }
 

@@ -250,7 +250,11 @@ const Scenario& PseudoTerminalBench::scenario() const {
   return impl_->bench_.scenario();
 }
 double PseudoTerminalBench::true_equivalence_reading_ml() const {
-  return impl_->bench_.true_equivalence_reading_ml();
+  // Under the bench's lock: the serving thread moves the burette meanwhile
+  // (ThreadSanitizer found the unlocked read).
+  double reading = 0.0;
+  impl_->with_bench([&reading](SimulatedBench& b) { reading = b.true_equivalence_reading_ml(); });
+  return reading;
 }
 
 void PseudoTerminalBench::set_burette_fault(FaultPlan plan) {
