@@ -7,6 +7,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "common/version.hpp"
 #include "controller/method/readiness.hpp"
 #include "controller/method/stored_methods.hpp"
 #include "controller/results.hpp"
@@ -836,6 +837,52 @@ class SeriesRun {
                                       outcome.reason};
   }
 
+  /// What a value rests on, for the record: method version, the endpoint
+  /// method and its options, titers with their titrant lots, the
+  /// calibration, each burette's last gravimetric check, the instruments,
+  /// the software version.
+  json traceability(const method::Method& m, const Measured& got,
+                    const std::optional<method::Readiness>& ready) {
+    json t;
+    t["method"] = {{"name", m.name}, {"version", m.version}};
+    for (const auto& step : m.steps)
+      if (const auto* e = std::get_if<method::EvaluateStep>(&step))
+        t["endpoint_method"] = {{"name", e->endpoint_method}, {"options", e->options}};
+    t["titers"] = json::array();
+    if (ready)
+      for (const auto& titer : ready->titers) {
+        auto record = stores_.methods.load_titrant(titer.titrant);
+        t["titers"].push_back({{"titrant", titer.titrant},
+                               {"titer_id", titer.titer_id},
+                               {"conc_mol_per_l", titer.conc_mol_per_l},
+                               {"lot", record ? record->lot : std::string()},
+                               {"expires_utc", titer.expires_utc}});
+      }
+    if (ready && ready->calibration)
+      t["calibration"] = {{"id", ready->calibration->id},
+                          {"electrode", ready->calibration->electrode},
+                          {"slope_mv_per_decade", ready->calibration->slope_mv_per_decade},
+                          {"measured_utc", ready->calibration->measured_utc}};
+    t["burettes"] = json::array();
+    for (const auto& use : m.titrants) {
+      json b = {{"burette", use.burette}, {"titrant", use.name}};
+      if (auto it = inst_.burettes.find(use.burette); it != inst_.burettes.end() && it->second)
+        b["instrument"] = it->second->describe();
+      if (auto checks = stores_.series.burette_check_history(use.burette);
+          checks && !checks->empty())
+        b["last_check"] = {{"id", checks->back().id},
+                           {"checked_utc", checks->back().checked_utc},
+                           {"passed", checks->back().passed}};
+      else
+        b["last_check"] = nullptr;
+      t["burettes"].push_back(b);
+    }
+    t["sensor"] = inst_.sensor.describe();
+    t["runs"] = {got.run_id, got.second_run_id};
+    t["software_version"] = kVersion;
+    return t;
+  }
+
   double nominal_conc(const std::string& titrant) {
     auto t = stores_.methods.load_titrant(titrant);
     return t ? t->nominal_conc_mol_per_l : 0.0;
@@ -876,6 +923,7 @@ class SeriesRun {
                 {"endpoint_uncertainty_ml", got.endpoint_uncertainty_ml},
                 {"titrant", got.titrated_with},
                 {"position", got.position}};
+    v.detail["traceability"] = traceability(m, got, ready);
     if (got.back_titration) {
       v.detail["excess_ml"] = got.excess_ml;
       v.detail["excess_titrant"] = got.excess_titrant;

@@ -11,6 +11,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "common/version.hpp"
 #include "controller/cli/demo_data.hpp"
 #include "controller/lab_checks.hpp"
 #include "controller/series/weighing.hpp"
@@ -143,6 +144,15 @@ TEST(Series, EveryEntryKindRunsAndTiterAndBlankBringTheResultsToTheTruth) {
     auto detail = json::parse(d.detail_json);
     EXPECT_NEAR(detail["titer"].get<double>(), 0.985, 0.001);
     EXPECT_NEAR(detail["blank_ml"].get<double>(), *blank->mean, 1e-12);
+    // What the value rests on: method version, endpoint method, titer and
+    // its lot, the calibration, the burette's last check, the software.
+    const auto& trace = detail["traceability"];
+    EXPECT_EQ(trace["method"]["version"], 1);
+    EXPECT_EQ(trace["endpoint_method"]["name"], "derivative");
+    EXPECT_EQ(trace["titers"][0]["lot"], "lot 26-118");
+    EXPECT_EQ(trace["calibration"]["electrode"], "calcium electrode 1");
+    EXPECT_EQ(trace["burettes"][0]["last_check"]["passed"], true);
+    EXPECT_EQ(trace["software_version"], kVersion);
   }
   auto results = b.store->load_entry_results((*entries)[5].id);
   ASSERT_TRUE(results.has_value());
