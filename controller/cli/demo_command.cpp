@@ -14,6 +14,7 @@
 #include "controller/cli/commands.hpp"
 #include "controller/cli/demo_data.hpp"
 #include "controller/cli/simulated_rack.hpp"
+#include "controller/cli/stop_after_interruption.hpp"
 #include "controller/method/method_file.hpp"
 #include "controller/method/stored_methods.hpp"
 #include "controller/method/titer.hpp"
@@ -28,6 +29,9 @@ namespace {
 struct DemoOptions {
   std::string db = "veq-demo.sqlite";
   bool verbose = false;
+  /// Print "point <run id> <index>" as each point is stored (for the crash
+  /// test, which must know what was acknowledged before it kills veq).
+  bool print_points = false;
   /// Leave the electrode fault out: every sample then gives a result.
   bool no_fault = false;
 };
@@ -36,8 +40,33 @@ struct DemoOptions {
 class DemoObserver final : public series::SeriesObserver {
  public:
   DemoObserver(bool verbose, simulator::SimulatedBench& bench, drivers::Clock& clock,
-               bool inject_fault)
-      : verbose_(verbose), bench_(bench), clock_(clock), inject_fault_(inject_fault) {}
+               bool inject_fault, store::RunStore* print_points_from)
+      : verbose_(verbose),
+        bench_(bench),
+        clock_(clock),
+        inject_fault_(inject_fault),
+        points_store_(print_points_from) {}
+
+  // Called only after the store has committed the point (titration.cpp), so
+  // a printed line is an acknowledged point. Flushed at once: a process
+  // killed right after must not lose the line in its stdio buffer.
+  void on_point(const store::PointRecord& point) override {
+    if (points_store_ == nullptr)
+      return;
+    // The point does not carry its run: a run's first point looks up the
+    // one run the store has running (runs are one at a time here).
+    if (point.index == 0 || run_id_ == 0) {
+      run_id_ = -1;
+      if (auto runs = points_store_->list_runs(); runs) {
+        for (const auto& r : *runs)
+          if (r.status == store::RunStatus::running)
+            run_id_ = r.id;
+      }
+    }
+    std::printf("point %lld %lld\n", static_cast<long long>(run_id_),
+                static_cast<long long>(point.index));
+    std::fflush(stdout);
+  }
 
   void on_entry(const std::string& kind, const std::string& label) override {
     std::printf("  %-15s %-26s", kind.c_str(), label.c_str());
@@ -85,6 +114,8 @@ class DemoObserver final : public series::SeriesObserver {
   drivers::Clock& clock_;
   bool inject_fault_;
   bool faulted_ = false;
+  store::RunStore* points_store_;
+  std::int64_t run_id_ = 0;
 };
 
 double sum_mol(const simulator::PositionTruths& t) {
@@ -106,6 +137,20 @@ int run_demo(const DemoOptions& options) {
     return 2;
   }
   auto& store = **opened;
+
+  // The simulated bench, in memory, in virtual time: built first, so that
+  // after a crash the burettes are told to stop before anything else.
+  SimulatedRack rack;
+  if (auto built = rack.build(*scenario); !built) {
+    std::cerr << "veq demo: " << built.error().message << "\n";
+    return 2;
+  }
+  if (auto stopped =
+          stop_burettes_after_interruption(*rack.instruments, store.interrupted_on_open());
+      !stopped) {
+    std::cerr << "veq demo: " << stopped.error().message << "\n";
+    return 2;
+  }
 
   // The lab's records before the rack starts: the methods, the titrants as
   // made up, and the calcium standard's titer from earlier in the week.
@@ -144,12 +189,6 @@ int run_demo(const DemoOptions& options) {
     return 2;
   }
 
-  // The simulated bench, in memory, in virtual time.
-  SimulatedRack rack;
-  if (auto built = rack.build(*scenario); !built) {
-    std::cerr << "veq demo: " << built.error().message << "\n";
-    return 2;
-  }
   auto& clock = rack.clock;
   auto& bench = *rack.bench;
   auto& instruments = *rack.instruments;
@@ -167,7 +206,8 @@ int run_demo(const DemoOptions& options) {
   series::SeriesStores stores{store, store, store};
   series::SeriesOptions series_options;
   series_options.start_time = start;
-  DemoObserver observer(options.verbose, bench, clock, !options.no_fault);
+  DemoObserver observer(options.verbose, bench, clock, !options.no_fault,
+                        options.print_points ? &store : nullptr);
   auto outcome =
       series::run_series(*parsed, demo::kSeries, instruments, stores, series_options, &observer);
 
@@ -278,6 +318,8 @@ void add_demo_command(CLI::App& app) {
   demo->add_option("--db", options->db, "SQLite file to store the series in (created if absent)")
       ->capture_default_str();
   demo->add_flag("--verbose", options->verbose, "print what every step and run does");
+  demo->add_flag("--print-points", options->print_points,
+                 "print \"point <run> <index>\" as each point is stored (for crash tests)");
   demo->add_flag("--no-fault", options->no_fault,
                  "leave out the injected electrode fault (every sample then gives a result)");
   demo->callback([options] {
