@@ -21,6 +21,10 @@
 #include "controller/series/series_file.hpp"
 #include "controller/series/series_runner.hpp"
 #include "controller/store/sqlite_store.hpp"
+#if VEQ_WITH_REPORT
+#include "ui/report/pdf_report.hpp"
+#include "ui/report/report_from_store.hpp"
+#endif
 
 namespace veq::cli {
 
@@ -34,6 +38,8 @@ struct DemoOptions {
   bool print_points = false;
   /// Leave the electrode fault out: every sample then gives a result.
   bool no_fault = false;
+  /// Write the series' PDF report here (needs a veq built with Qt).
+  std::string report;
 };
 
 /// Prints the series as it goes; with --verbose every message of every run.
@@ -301,6 +307,25 @@ int run_demo(const DemoOptions& options) {
               options.db.c_str(), options.db.c_str(), static_cast<long long>(outcome.series_id));
   if (!outcome.burettes_stopped)
     std::printf("WARNING: a burette did not confirm its stop\n");
+  if (!options.report.empty()) {
+#if VEQ_WITH_REPORT
+    report::ReportSources sources{store, &store, nullptr};
+    auto data = report::stored_series_report_data(sources, store, outcome.series_id);
+    if (!data) {
+      std::cerr << "veq demo: cannot gather the report: " << data.error().message << "\n";
+      return 2;
+    }
+    if (auto written = report::write_series_report(*data, options.report); !written) {
+      std::cerr << "veq demo: " << written.error().message << "\n";
+      return 2;
+    }
+    std::printf("The series' report is in %s (%zu titrations).\n", options.report.c_str(),
+                data->runs.size());
+#else
+    std::cerr << "veq demo: this veq was built without Qt and cannot write PDF reports\n";
+    return 2;
+#endif
+  }
   return outcome.status == store::SeriesStatus::completed ? 0 : 1;
 }
 
@@ -322,6 +347,8 @@ void add_demo_command(CLI::App& app) {
                  "print \"point <run> <index>\" as each point is stored (for crash tests)");
   demo->add_flag("--no-fault", options->no_fault,
                  "leave out the injected electrode fault (every sample then gives a result)");
+  demo->add_option("--report", options->report,
+                   "write the series' PDF report to this file (docs/reports.md)");
   demo->callback([options] {
     const int code = run_demo(*options);
     if (code != 0)
