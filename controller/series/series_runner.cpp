@@ -563,6 +563,14 @@ class SeriesRun {
   std::optional<Failure> bring_vessel(int position) {
     if (!inst_.changer)
       return std::nullopt;
+    // The head may have been left down (a series stopped mid-vessel, an
+    // operator's manual move): the changer carries it only when raised.
+    auto status = inst_.changer->status();
+    if (!status)
+      return device_failure("sample changer, reading its status", status.error());
+    if (status->head != drivers::HeadPosition::up)
+      if (auto r = inst_.changer->raise(); !r)
+        return device_failure("sample changer, raising the head", r.error());
     if (auto r = inst_.changer->move_to(position); !r)
       return device_failure("sample changer, moving to position " + std::to_string(position),
                             r.error());

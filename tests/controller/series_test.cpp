@@ -612,3 +612,19 @@ TEST(Series, APortionTheBalanceCouldNotWeighFailsAlone) {
 
 }  // namespace
 }  // namespace veq::series
+
+namespace veq::series {
+namespace {
+
+TEST(Series, AHeadLeftDownIsRaisedBeforeTheFirstVessel) {
+  // An operator lowered the head by hand at position 30 before the series.
+  SeriesBench b;
+  b.prepare_lab();
+  ASSERT_TRUE(b.changer->move_to(30).has_value());
+  ASSERT_TRUE(b.changer->lower().has_value());
+  auto outcome = b.run(series_with(kTwoSamples));
+  EXPECT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+}
+
+}  // namespace
+}  // namespace veq::series
