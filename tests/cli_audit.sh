@@ -13,6 +13,19 @@ printf 'admin-pass-1\nreviewer-pass\n' |
   "$veq" user add --db "$db" --name rev --role reviewer --by admin 2>/dev/null
 printf 'reviewer-pass\n' | "$veq" sign-off --db "$db" --run 1 --user rev 2>/dev/null
 "$veq" audit verify --db "$db" | grep -q "audit trail intact: 3 records"
+# Methods change only by an administrator once the store has users, and the
+# change is recorded: no user, a reviewer, and a wrong password are refused.
+method="$dir/hardness.method"
+sed 's/^replicates = 2/replicates = 3/' "$(dirname "$0")/../docs/examples/tap-water-hardness.method" >"$method"
+# (`! cmd` would not stop the script under set -e: test each refusal.)
+refused() { if "$@" 2>/dev/null; then echo "not refused: $*"; exit 1; fi; }
+refused "$veq" method import "$method" --db "$db"
+refused "$veq" method import "$method" --db "$db" --user rev <<<"reviewer-pass"
+refused "$veq" method import "$method" --db "$db" --user admin <<<"wrong"
+printf 'admin-pass-1\n' | "$veq" method import "$method" --db "$db" --user admin \
+  --reason "three replicates" 2>/dev/null | grep -q "recorded in the audit trail"
+"$veq" audit verify --db "$db" | grep -q "audit trail intact: 4 records"
+"$veq" audit list --db "$db" | grep -q "change method"
 # An analyst's edit of the sign-off record, past the database's own refusal.
 sqlite3 "$db" "DROP TRIGGER audit_records_are_unchangeable;
                UPDATE audit_records SET new_value = 'rejected' WHERE sequence = 3;"

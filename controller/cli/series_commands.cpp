@@ -2,6 +2,7 @@
 // `veq titrant add|list`: series on the simulator, and the lab's methods and
 // titrants in the store.
 #include <cstdio>
+#include <filesystem>
 #include <fstream>
 #include <iostream>
 #include <memory>
@@ -10,6 +11,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "controller/audit/audit.hpp"
 #include "controller/cli/commands.hpp"
 #include "controller/cli/simulated_rack.hpp"
 #include "controller/cli/stop_after_interruption.hpp"
@@ -19,6 +21,7 @@
 #include "controller/series/series_file.hpp"
 #include "controller/series/series_runner.hpp"
 #include "controller/series/weighing.hpp"
+#include "controller/store/audit_trail.hpp"
 #include "controller/store/sqlite_store.hpp"
 #include "drivers/connection.hpp"
 
@@ -322,23 +325,74 @@ void add_method_commands(CLI::App& app) {
     std::string name;
     int version = 0;
     std::string out;
+    std::string user;
+    std::string key;
+    std::string reason;
   };
   auto o = std::make_shared<Options>();
 
   CLI::App* imp = group->add_subcommand(
       "import",
-      "Store a method file as the next version of its method (an unchanged file adds nothing)");
+      "Store a method file as the next version of its method (an unchanged file adds nothing).\n"
+      "Once a store has users, only an administrator may change methods: give --user, and\n"
+      "the password on standard input; the change is recorded in the audit trail.");
   imp->add_option("file", o->file, "method file")->required();
   imp->add_option("--db", o->db, "SQLite file")->capture_default_str();
+  imp->add_option("--user", o->user, "the administrator changing the method");
+  imp->add_option("--key", o->key,
+                  "audit key file (default: <db>.audit-key beside the store, or $VEQ_AUDIT_KEY)");
+  imp->add_option("--reason", o->reason, "why the method changes (recorded)");
   imp->callback([o] {
     auto m = method::read_method_file(o->file);
     if (!m)
       fail(m.error().message);
+    // The audit key is made with a store's first user: without it the store
+    // has no users yet (a laboratory setting up), and methods are stored
+    // unsigned; with it, the permission is checked.
+    const std::string key =
+        o->key.empty() ? controller::audit::default_key_path(o->db).string() : o->key;
+    std::unique_ptr<store::AuditTrail> trail;
+    if (std::filesystem::exists(key)) {
+      if (o->user.empty())
+        fail("this store has users: give --user (an administrator) to change a method");
+      auto t = store::AuditTrail::open(o->db, key, false);
+      if (!t)
+        fail(t.error().message);
+      trail = std::move(t).value();
+      std::fprintf(stderr, "password of %s: ", o->user.c_str());
+      std::fflush(stderr);
+      std::string password;
+      if (!std::getline(std::cin, password))
+        fail("no password on standard input");
+      if (!password.empty() && password.back() == '\r')
+        password.pop_back();
+      auto role = trail->authenticate(o->user, password);
+      if (!role)
+        fail(role.error().message);
+      if (!controller::audit::allowed(*role, controller::audit::Permission::change_methods))
+        fail(o->user + " is a " + controller::audit::role_name(*role) +
+             ": only an administrator may change methods");
+    }
     auto store = open_store(o->db);
+    auto before = store->list_method_versions(m->name);
+    const int previous = before && !before->empty() ? before->back().version : 0;
     auto saved = method::save_method(*store, *m);
     if (!saved)
       fail(saved.error().message);
-    std::printf("method '%s' stored as version %d\n", saved->name.c_str(), saved->version);
+    if (saved->version == previous) {
+      std::printf("method '%s' unchanged: still version %d\n", saved->name.c_str(), saved->version);
+      return;
+    }
+    if (trail) {
+      auto recorded = trail->append(o->user, "change method", "method '" + saved->name + "'",
+                                    previous > 0 ? "version " + std::to_string(previous) : "none",
+                                    "version " + std::to_string(saved->version), o->reason);
+      if (!recorded)
+        fail("method stored as version " + std::to_string(saved->version) +
+             " but not recorded in the audit trail: " + recorded.error().message);
+    }
+    std::printf("method '%s' stored as version %d%s\n", saved->name.c_str(), saved->version,
+                trail ? " (recorded in the audit trail)" : " (no users in this store)");
   });
 
   CLI::App* exp = group->add_subcommand("export", "Write a stored method version as a text file");
