@@ -5,6 +5,7 @@
 #include <string>
 
 #include "controller/audit/audit.hpp"
+#include "controller/cli/cli_support.hpp"
 #include "controller/cli/commands.hpp"
 #include "controller/store/audit_trail.hpp"
 #include "controller/store/sqlite_store.hpp"
@@ -34,19 +35,6 @@ std::unique_ptr<store::AuditTrail> open_trail(const AuditOptions& o, bool create
   if (!t)
     throw CLI::Error("AuditError", t.error().message, 2);
   return std::move(t).value();
-}
-
-// A password from standard input, one line: typed at a terminal, or piped
-// in by a script (never on the command line, where `ps` would show it).
-std::string read_password(const char* prompt) {
-  std::fprintf(stderr, "%s: ", prompt);
-  std::fflush(stderr);
-  std::string line;
-  if (!std::getline(std::cin, line))
-    throw CLI::Error("AuditError", "no password on standard input", 2);
-  if (!line.empty() && line.back() == '\r')
-    line.pop_back();
-  return line;
 }
 
 void fail_on(const veq::Result<void>& r) {
@@ -81,8 +69,8 @@ void add_audit_commands(CLI::App& app) {
     auto trail = open_trail(*o, true);
     std::string by_password;
     if (!o->user.empty())
-      by_password = read_password(("password of " + o->user).c_str());
-    const std::string password = read_password(("new password for " + o->name).c_str());
+      by_password = read_password("password of " + o->user);
+    const std::string password = read_password("new password for " + o->name);
     fail_on(trail->add_user(o->user, by_password, o->name, *role, password));
     std::printf("user %s added as %s\n", o->name.c_str(), o->role.c_str());
   });
@@ -95,7 +83,7 @@ void add_audit_commands(CLI::App& app) {
   sign->add_option("--meaning", o->meaning, "what the signature means")->capture_default_str();
   sign->callback([o] {
     auto trail = open_trail(*o, false);
-    const std::string password = read_password(("password of " + o->user).c_str());
+    const std::string password = read_password("password of " + o->user);
     auto s = trail->sign_off(o->user, password, o->run_id, o->meaning);
     if (!s)
       throw CLI::Error("AuditError", s.error().message, 2);
@@ -114,7 +102,7 @@ void add_audit_commands(CLI::App& app) {
   choose->add_option("--reason", o->reason, "why")->required();
   choose->callback([o] {
     auto trail = open_trail(*o, false);
-    const std::string password = read_password(("password of " + o->user).c_str());
+    const std::string password = read_password("password of " + o->user);
     fail_on(trail->choose_evaluation(o->user, password, o->run_id, o->evaluation_id, o->reason));
     std::printf("run %lld now uses evaluation %lld\n", static_cast<long long>(o->run_id),
                 static_cast<long long>(o->evaluation_id));

@@ -15,6 +15,7 @@
 #include "controller/cli/demo_data.hpp"
 #include "controller/cli/simulated_rack.hpp"
 #include "controller/cli/stop_after_interruption.hpp"
+#include "controller/lab_checks.hpp"
 #include "controller/method/method_file.hpp"
 #include "controller/method/stored_methods.hpp"
 #include "controller/method/titer.hpp"
@@ -249,7 +250,8 @@ int run_demo(const DemoOptions& options) {
         first_position = s.positions.front();
     switch (e.kind) {
       case series::EntryKind::calibration:
-        truth = 0.98 * 1000.0 * 8.314462618 * 298.15 * std::log(10.0) / (2.0 * 96485.33212);
+        // The scenario electrode: 98 % of the Nernst slope at 25 °C.
+        truth = 0.98 * controller::nernst_slope_mv_per_decade(25.0, 2);
         break;
       case series::EntryKind::burette_check:
         truth = 10.0;

@@ -12,6 +12,7 @@
 #include <nlohmann/json.hpp>
 
 #include "controller/audit/audit.hpp"
+#include "controller/cli/cli_support.hpp"
 #include "controller/cli/commands.hpp"
 #include "controller/cli/simulated_rack.hpp"
 #include "controller/cli/stop_after_interruption.hpp"
@@ -28,13 +29,6 @@
 namespace veq::cli {
 
 namespace {
-
-std::unique_ptr<store::SqliteStore> open_store(const std::string& path) {
-  auto s = store::SqliteStore::open(path);
-  if (!s)
-    throw CLI::Error("StoreError", s.error().message, 2);
-  return std::move(s).value();
-}
 
 [[noreturn]] void fail(const std::string& message, int code = 2) {
   throw CLI::Error("Failure", message, code);
@@ -86,7 +80,7 @@ int run_series_file(const SeriesRunOptions& o) {
   auto scenario = simulator::load_scenario(o.scenario);
   if (!scenario)
     fail(scenario.error().message);
-  auto store = open_store(o.db);
+  auto store = open_store_or_throw(o.db);
   SimulatedRack rack;
   if (auto built = rack.build(*scenario); !built)
     fail(built.error().message);
@@ -110,7 +104,7 @@ int run_series_file(const SeriesRunOptions& o) {
 }
 
 void list_series(const std::string& db) {
-  auto store = open_store(db);
+  auto store = open_store_or_throw(db);
   auto all = store->list_series();
   if (!all)
     fail(all.error().message);
@@ -122,7 +116,7 @@ void list_series(const std::string& db) {
 }
 
 void show_series(const std::string& db, std::int64_t id, bool json_out) {
-  auto store = open_store(db);
+  auto store = open_store_or_throw(db);
   auto s = store->load_series(id);
   if (!s)
     fail(s.error().message);
@@ -359,21 +353,14 @@ void add_method_commands(CLI::App& app) {
       if (!t)
         fail(t.error().message);
       trail = std::move(t).value();
-      std::fprintf(stderr, "password of %s: ", o->user.c_str());
-      std::fflush(stderr);
-      std::string password;
-      if (!std::getline(std::cin, password))
-        fail("no password on standard input");
-      if (!password.empty() && password.back() == '\r')
-        password.pop_back();
-      auto role = trail->authenticate(o->user, password);
+      auto role = trail->authenticate(o->user, read_password("password of " + o->user));
       if (!role)
         fail(role.error().message);
       if (!controller::audit::allowed(*role, controller::audit::Permission::change_methods))
         fail(o->user + " is a " + controller::audit::role_name(*role) +
              ": only an administrator may change methods");
     }
-    auto store = open_store(o->db);
+    auto store = open_store_or_throw(o->db);
     auto before = store->list_method_versions(m->name);
     const int previous = before && !before->empty() ? before->back().version : 0;
     auto saved = method::save_method(*store, *m);
@@ -401,7 +388,7 @@ void add_method_commands(CLI::App& app) {
   exp->add_option("--version", o->version, "version (default: the latest)");
   exp->add_option("--out", o->out, "file to write (default: print)");
   exp->callback([o] {
-    auto store = open_store(o->db);
+    auto store = open_store_or_throw(o->db);
     auto m = method::load_method(*store, o->name, o->version);
     if (!m)
       fail(m.error().message);
@@ -419,7 +406,7 @@ void add_method_commands(CLI::App& app) {
   CLI::App* list = group->add_subcommand("list", "Stored methods and their versions");
   list->add_option("--db", o->db, "SQLite file")->capture_default_str();
   list->callback([o] {
-    auto store = open_store(o->db);
+    auto store = open_store_or_throw(o->db);
     auto names = store->list_method_names();
     if (!names)
       fail(names.error().message);
@@ -468,7 +455,7 @@ void add_titrant_commands(CLI::App& app) {
       o->titrant.prepared_utc = store::utc_now_iso8601();
     else if (auto t = method::parse_utc(o->titrant.prepared_utc); !t)
       fail(t.error().message);
-    auto store = open_store(o->db);
+    auto store = open_store_or_throw(o->db);
     if (auto r = store->save_titrant(o->titrant); !r)
       fail(r.error().message);
     std::printf("titrant '%s' stored\n", o->titrant.name.c_str());
@@ -476,7 +463,7 @@ void add_titrant_commands(CLI::App& app) {
   CLI::App* list = group->add_subcommand("list", "Titrants with their latest titer");
   list->add_option("--db", o->db, "SQLite file")->capture_default_str();
   list->callback([o] {
-    auto store = open_store(o->db);
+    auto store = open_store_or_throw(o->db);
     auto titrants = store->list_titrants();
     if (!titrants)
       fail(titrants.error().message);

@@ -5,6 +5,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
+#include "controller/cli/cli_support.hpp"
 #include "controller/cli/commands.hpp"
 #include "controller/store/sqlite_store.hpp"
 
@@ -19,15 +20,8 @@ struct StoreOptions {
   bool json = false;
 };
 
-std::unique_ptr<store::SqliteStore> open_or_throw(const std::string& path) {
-  auto s = store::SqliteStore::open(path);
-  if (!s)
-    throw CLI::Error("StoreError", s.error().message, 2);
-  return std::move(s).value();
-}
-
 void list_runs(const StoreOptions& o) {
-  auto s = open_or_throw(o.db);
+  auto s = open_store_or_throw(o.db);
   auto runs = s->list_runs();
   if (!runs)
     throw CLI::Error("StoreError", runs.error().message, 2);
@@ -55,7 +49,7 @@ void list_runs(const StoreOptions& o) {
 }
 
 void show_run(const StoreOptions& o) {
-  auto s = open_or_throw(o.db);
+  auto s = open_store_or_throw(o.db);
   auto run = s->load_run(o.run_id);
   if (!run)
     throw CLI::Error("StoreError", run.error().message, 2);

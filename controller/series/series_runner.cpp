@@ -273,6 +273,7 @@ class SeriesRun {
     };
 
     std::vector<double> values;
+    std::vector<double> endpoint_volumes;
     std::vector<double> endpoint_uncertainties;
     int replicate_no = 0;
     int planned = replicates;
@@ -341,6 +342,7 @@ class SeriesRun {
         if (auto f = store_determination(d))
           return f;
         values.push_back(value->value);
+        endpoint_volumes.push_back(got.endpoint_ml);
         endpoint_uncertainties.push_back(got.endpoint_uncertainty_ml);
         break;
       }
@@ -365,7 +367,7 @@ class SeriesRun {
     }
     entry_->values = values;
     entry_->unit = unit_of(entry, m);
-    return conclude(entry, m, values, endpoint_uncertainties, ready);
+    return conclude(entry, m, values, endpoint_volumes, endpoint_uncertainties, ready);
   }
 
   /// The entry's result from its counted values: statistics, limits, and
@@ -373,6 +375,7 @@ class SeriesRun {
   /// series (refused titer, failed check standard).
   std::optional<Failure> conclude(const Entry& entry, const method::Method& m,
                                   const std::vector<double>& values,
+                                  const std::vector<double>& endpoint_volumes,
                                   const std::vector<double>& endpoint_uncertainties,
                                   const std::optional<method::Readiness>& ready) {
     if (entry.kind == EntryKind::conditioning)
@@ -414,7 +417,6 @@ class SeriesRun {
       case EntryKind::blank:
         r.name = "blank volume";
         blank_ml_[m.name] = mean;
-        blank_sd_ml_[m.name] = r.sd;
         break;
       case EntryKind::titer: {
         r.name = "titer concentration";
@@ -469,7 +471,8 @@ class SeriesRun {
         if (values.size() < static_cast<std::size_t>(std::max(1, replicates_)))
           flag(std::to_string(values.size()) + " of " + std::to_string(replicates_) +
                " replicates gave a value");
-        if (auto budget = uncertainty(entry, m, mean, values, endpoint_uncertainties, ready);
+        if (auto budget =
+                uncertainty(entry, mean, values, endpoint_volumes, endpoint_uncertainties, ready);
             budget) {
           json rows = json::array();
           for (const auto& c : budget->components)
@@ -497,11 +500,17 @@ class SeriesRun {
   /// GUM budget of a sample's mean: burette volume, endpoint, titer,
   /// repeatability, sample size (relative uncertainties in quadrature).
   Result<controller::UncertaintyBudget> uncertainty(
-      const Entry& entry, const method::Method& m, double mean, const std::vector<double>& values,
+      const Entry& entry, double mean, const std::vector<double>& values,
+      const std::vector<double>& endpoint_volumes,
       const std::vector<double>& endpoint_uncertainties,
       const std::optional<method::Readiness>& ready) {
     std::vector<controller::UncertaintyComponent> c;
-    const double volume = last_endpoint_ml_ > 0.0 ? last_endpoint_ml_ : 1.0;
+    // The typical titrant volume of this entry: the mean of its endpoints.
+    const double volume =
+        endpoint_volumes.empty()
+            ? 1.0
+            : std::accumulate(endpoint_volumes.begin(), endpoint_volumes.end(), 0.0) /
+                  static_cast<double>(endpoint_volumes.size());
     c.push_back({"titrant volume (burette tolerance)", volume,
                  volume * options_.burette_relative_uncertainty,
                  "ISO 8655-3 systematic limit, rectangular: a/√3"});
@@ -538,11 +547,12 @@ class SeriesRun {
     const Portion p = entry.portions.empty() ? Portion{} : entry.portions.front();
     if (p.mass_g > 0.0)
       c.push_back({"sample mass", p.mass_g, 0.0001 / std::sqrt(3.0) * std::sqrt(2.0),
-                   "balance readability 0.1 mg, two readings, rectangular"});
+                   "balance readability 0.1 mg assumed (an analytical balance), two readings, "
+                   "rectangular"});
     else if (p.aliquot_ml > 0.0)
       c.push_back({"aliquot volume", p.aliquot_ml, p.aliquot_ml * 0.0008 / std::sqrt(6.0),
-                   "class A pipette tolerance ±0.08 %, triangular (common practice)"});
-    (void)m;
+                   "class A pipette tolerance ±0.08 % (recalled from memory), triangular (common "
+                   "practice)"});
     return controller::product_quotient_budget(mean, c);
   }
 
@@ -833,7 +843,6 @@ class SeriesRun {
     if (outcome.status == store::RunStatus::completed && outcome.endpoint) {
       got.endpoint_ml = outcome.endpoint->volume_ml;
       got.endpoint_uncertainty_ml = outcome.endpoint->uncertainty_ml;
-      last_endpoint_ml_ = got.endpoint_ml;
       return std::nullopt;
     }
     // No endpoint is this vessel's problem; anything else (a device, an
@@ -1307,10 +1316,8 @@ class SeriesRun {
   std::vector<std::string> notes_;
   std::vector<std::string> flags_;
   bool flagged_ = false;
-  double last_endpoint_ml_ = 0.0;
   int replicates_ = 1;  ///< of the entry running
   std::map<std::string, double> blank_ml_;
-  std::map<std::string, double> blank_sd_ml_;
 };
 
 }  // namespace
