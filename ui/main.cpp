@@ -1,5 +1,6 @@
-// veq-gui: look at stored titration runs. With --screenshot it renders one
-// run offscreen to a PNG and exits (no display needed).
+// veq-gui: the desktop application (instruments, series, the live run,
+// stored runs). With --screenshot it renders one stored run offscreen to a
+// PNG and exits (no display needed).
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
@@ -28,8 +29,8 @@ int main(int argc, char** argv) {
 
   QCommandLineParser parser;
   parser.setApplicationDescription(
-      "Shows the titration runs stored in a veq SQLite file: each run's curve and its first\n"
-      "derivative with the endpoint marked.");
+      "Sets up the instruments, runs series of titrations and shows each curve as it grows;\n"
+      "shows the titration runs stored in a veq SQLite file with their endpoints.");
   parser.addHelpOption();
   parser.addVersionOption();
   QCommandLineOption db_option("db", "veq database to open (default: $VEQ_DB, else ./veq.sqlite).",
@@ -75,7 +76,10 @@ int main(int argc, char** argv) {
   window.resize(1280, 860);
   window.show();
   if (auto opened = window.open_database(db); !opened) {
-    QMessageBox::warning(&window, "veq", QString::fromStdString(opened.error().describe()));
+    // A missing default database is the usual first start: the File menu
+    // creates one. A database asked for by name must be there.
+    if (parser.isSet(db_option) || std::getenv("VEQ_DB") != nullptr)
+      QMessageBox::warning(&window, "veq", QString::fromStdString(opened.error().describe()));
   } else if (run_id > 0) {
     if (auto shown = window.browser().show_run(run_id); !shown)
       QMessageBox::warning(&window, "veq", QString::fromStdString(shown.error().describe()));

@@ -17,6 +17,7 @@ Result<void> save_run_screenshot(const std::string& database_path, std::int64_t 
     return opened;
   if (auto shown = window.browser().show_run(run_id); !shown)
     return shown;
+  window.show_view_of(&window.browser());
   window.resize(size.width_px, size.height_px);
   window.show();
   QApplication::processEvents();
