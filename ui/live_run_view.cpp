@@ -114,11 +114,9 @@ void LiveRunView::add_point(qint64 /*index*/, double volume_ml, double signal, d
   volume_ml_.push_back(volume_ml);
   signal_mv_.push_back(signal);
   drift_per_min_ = drift_per_min;
+  // Figures and charts wait for the timer: a label's new text can re-lay
+  // out the whole window, too much to do for every point of a fast run.
   dirty_ = true;
-  // The figures are cheap to set; the charts wait for the timer.
-  volume_->setText(fixed(volume_ml, 3) + " mL");
-  signal_->setText(fixed(signal, 1) + " mV");
-  drift_->setText(fixed(drift_per_min, 2) + " mV/min");
 }
 
 void LiveRunView::set_state(const QString& /*from*/, const QString& to, const QString& reason) {
@@ -157,6 +155,11 @@ void LiveRunView::redraw() {
   dirty_ = false;
   ++redraws_;
   drawn_ = static_cast<int>(volume_ml_.size());
+  if (!volume_ml_.empty()) {
+    volume_->setText(fixed(volume_ml_.back(), 3) + " mL");
+    signal_->setText(fixed(signal_mv_.back(), 1) + " mV");
+    drift_->setText(fixed(drift_per_min_, 2) + " mV/min");
+  }
   if (volume_ml_.empty()) {
     curve_chart_->clear("titration curve: waiting for points");
     derivative_chart_->clear("first derivative: waiting for points");

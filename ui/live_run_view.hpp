@@ -52,6 +52,7 @@ class LiveRunView : public QWidget {
   /// Redraws done since the run began (for the batching test).
   int redraw_count() const { return redraws_; }
   QString state_text() const;
+  /// The volume figure as last drawn ("19.980 mL").
   QString volume_text() const;
 
  private:

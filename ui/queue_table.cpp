@@ -191,7 +191,8 @@ Result<series::Entry> row_to_entry(const QueueRow& row, int row_number) {
                                              " takes aliquots in mL, not masses");
       const auto values = items(size);
       if (values.empty() || lower(size) == "balance") {
-        portions.push_back(series::Portion{0.0, 0.0, true});
+        // One portion to weigh per position, as "masses = balance" reads.
+        portions.assign(e.positions.size(), series::Portion{0.0, 0.0, true});
       } else {
         for (const auto& v : values) {
           const auto x = number(v);
