@@ -181,6 +181,7 @@ MethodEditorView::MethodEditorView(QWidget* parent)
   splitter->setStretchFactor(0, 1);
   splitter->setStretchFactor(1, 3);
   splitter->setStretchFactor(2, 3);
+  splitter->setSizes({230, 420, 520});
 
   message_ = new MessageLine(this);
   outer->addWidget(message_);
@@ -368,15 +369,15 @@ Result<void> MethodEditorView::update_preview() {
         ChartRule{QStringLiteral("equivalence %1 mL").arg(fixed(b.equivalence_volume_ml, 3)),
                   b.equivalence_volume_ml, 0xC62828, ChartLine::Style::dashed});
     words << QStringLiteral(
-                 "Equivalence point of %1 at %2 mL; p%1 rises by %3 between 99 %% "
-                 "and 101 %% of it.")
+                 "Equivalence point of %1 at %2 mL; p%1 rises by %3 between 99 % "
+                 "and 101 % of it.")
                  .arg(QString::fromStdString(b.metal), fixed(b.equivalence_volume_ml, 3),
                       fixed(b.p_metal_jump, 2));
   }
   for (const auto& m : prediction->feasibility.metals) {
     words << QStringLiteral(
                  "%1 at pH %2: log10 K' = %3 L/mol, log10(C K') = %4: %5. Estimated "
-                 "titration error %6 %%. pH range where it is sharp: %7.")
+                 "titration error %6 %. pH range where it is sharp: %7.")
                  .arg(QString::fromStdString(m.metal), fixed(ph_->value(), 2),
                       fixed(m.conditional.log10_conditional, 2), fixed(m.log10_ck, 2),
                       m.sharp ? "SHARP enough" : "NOT sharp enough",

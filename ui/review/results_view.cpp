@@ -96,7 +96,9 @@ ResultsView::ResultsView(QWidget* parent)
   days->addWidget(from_day_);
   days->addWidget(new QLabel("to", runs_page));
   days->addWidget(to_day_);
-  filters->addRow("&Started from:", days);
+  auto* days_label = new QLabel("&Started from:", runs_page);
+  days_label->setBuddy(from_day_);
+  filters->addRow(days_label, days);
   filters->addRow("&Method:", method_filter_);
   filters->addRow("S&tatus:", status_filter_);
   filters->addRow("Te&xt:", text_filter_);
@@ -157,6 +159,7 @@ ResultsView::ResultsView(QWidget* parent)
   comparison_->setObjectName("comparison_table");
   comparison_->setEditTriggers(QAbstractItemView::NoEditTriggers);
   comparison_->horizontalHeader()->setSectionResizeMode(QHeaderView::Stretch);
+  comparison_->verticalHeader()->setDefaultSectionSize(22);
   curve_layout->addWidget(comparison_, 2);
 
   auto* actions = new QGridLayout();
@@ -326,6 +329,7 @@ ResultsView::ResultsView(QWidget* parent)
 
   splitter->setStretchFactor(0, 2);
   splitter->setStretchFactor(1, 5);
+  splitter->setSizes({330, 850});
   message_ = new MessageLine(this);
   outer->addWidget(message_);
   connect(message_, &MessageLine::problem, this, &ResultsView::problem);
@@ -627,16 +631,22 @@ void ResultsView::fill_comparison() {
   std::size_t most = 0;
   for (const auto& e : evaluations_)
     most = std::max(most, e.endpoints.size());
-  QStringList rows = {"method", "options", "stored (UTC)", "used for results", "curve flags"};
+  // The endpoints first: they are what the columns are compared for.
+  QStringList rows = {"method"};
   for (std::size_t k = 1; k <= most; ++k) {
     const QString n = QString::number(k);
     rows << "endpoint " + n + " volume (mL)"
+         << "endpoint " + n + " minus first evaluation (mL)"
          << "endpoint " + n + " standard uncertainty (mL)"
          << "endpoint " + n + " signal (" + unit + ")"
          << "endpoint " + n + " steepness (" + unit + "/mL)"
-         << "endpoint " + n + " flags"
-         << "endpoint " + n + " minus first evaluation (mL)";
+         << "endpoint " + n + " flags";
   }
+  const int tail = static_cast<int>(rows.size());
+  rows << "used for results"
+       << "curve flags"
+       << "options"
+       << "stored (UTC)";
   comparison_->clear();
   comparison_->setRowCount(static_cast<int>(rows.size()));
   comparison_->setColumnCount(static_cast<int>(evaluations_.size()));
@@ -654,26 +664,26 @@ void ResultsView::fill_comparison() {
     header->setForeground(QColor(QRgb(chart_colour(c))));
     comparison_->setHorizontalHeaderItem(col, header);
     set_cell(comparison_, 0, col, q(e.method));
-    set_cell(comparison_, 1, col,
-             q(e.options_json.size() > 80 ? e.options_json.substr(0, 77) + "..." : e.options_json));
-    comparison_->item(1, col)->setToolTip(q(e.options_json));
-    set_cell(comparison_, 2, col, q(readable_utc(e.created_utc)));
-    const bool chosen = chosen_evaluation_ ? *chosen_evaluation_ == e.id : used.count(e.id) > 0;
-    set_cell(comparison_, 3, col, chosen ? (chosen_evaluation_ ? "yes (chosen)" : "yes") : "no");
-    set_cell(comparison_, 4, col, e.flags.empty() ? "none" : q(e.flags));
     for (std::size_t k = 0; k < e.endpoints.size(); ++k) {
       const auto& p = e.endpoints[k];
-      const int base = 5 + static_cast<int>(k) * 6;
-      set_cell(comparison_, base, col, fixed(p.volume_ml, 4));
-      set_cell(comparison_, base + 1, col, fixed(p.uncertainty_ml, 4));
-      set_cell(comparison_, base + 2, col, significant(p.signal, 5));
-      set_cell(comparison_, base + 3, col, significant(p.steepness, 4));
-      set_cell(comparison_, base + 4, col, p.flags.empty() ? "none" : q(p.flags));
+      const int base = 1 + static_cast<int>(k) * 6;
       const auto& first = evaluations_.front().endpoints;
-      set_cell(comparison_, base + 5, col,
+      set_cell(comparison_, base, col, fixed(p.volume_ml, 4));
+      set_cell(comparison_, base + 1, col,
                k < first.size() ? QString::asprintf("%+.4f", p.volume_ml - first[k].volume_ml)
                                 : QString("-"));
+      set_cell(comparison_, base + 2, col, fixed(p.uncertainty_ml, 4));
+      set_cell(comparison_, base + 3, col, significant(p.signal, 5));
+      set_cell(comparison_, base + 4, col, significant(p.steepness, 4));
+      set_cell(comparison_, base + 5, col, p.flags.empty() ? "none" : q(p.flags));
     }
+    const bool chosen = chosen_evaluation_ ? *chosen_evaluation_ == e.id : used.count(e.id) > 0;
+    set_cell(comparison_, tail, col, chosen ? (chosen_evaluation_ ? "yes (chosen)" : "yes") : "no");
+    set_cell(comparison_, tail + 1, col, e.flags.empty() ? "none" : q(e.flags));
+    set_cell(comparison_, tail + 2, col,
+             q(e.options_json.size() > 80 ? e.options_json.substr(0, 77) + "..." : e.options_json));
+    comparison_->item(tail + 2, col)->setToolTip(q(e.options_json));
+    set_cell(comparison_, tail + 3, col, q(readable_utc(e.created_utc)));
   }
 }
 
@@ -743,6 +753,8 @@ void ResultsView::draw_chart() {
         line.rgb = chart_colour(colour);
         line.style = ChartLine::Style::dotted;
         line.right_axis = true;
+        // The colour says which evaluation; the legend keeps one entry per evaluation.
+        line.in_legend = false;
         content.lines.push_back(std::move(line));
       }
     }
@@ -1081,7 +1093,7 @@ Result<void> ResultsView::show_control_history(int index) {
   ChartContent content;
   content.title = q(h.title);
   content.x_title = "date (UTC)";
-  content.y_title = q(h.title) + " (" + q(h.unit) + ")";
+  content.y_title = "value (" + q(h.unit) + ")";
   content.x_is_time = true;
   ChartLine line;
   line.label = "values";

@@ -95,6 +95,7 @@ class ResultsView : public QWidget {
   QTableWidget* statistics_table() const { return statistics_; }
   /// Number of control histories (titers, check standards) and showing one.
   int control_history_count() const { return static_cast<int>(histories_.size()); }
+  const std::vector<ControlHistory>& histories() const { return histories_; }
   Result<void> show_control_history(int index);
   Result<controller::audit::Verification> verify_audit();
   QTableWidget* audit_table() const { return audit_; }

@@ -7,6 +7,7 @@
 #include <QtCharts/QChartView>
 #include <QtCharts/QDateTimeAxis>
 #include <QtCharts/QLegend>
+#include <QtCharts/QLegendMarker>
 #include <QtCharts/QLineSeries>
 #include <QtCharts/QScatterSeries>
 #include <QtCharts/QValueAxis>
@@ -46,6 +47,36 @@ struct Range {
     hi += 0.04 * span;
   }
 };
+
+/// Widens [lo, hi] to whole multiples of a round step (1, 2 or 5 times a
+/// power of ten) giving about six intervals, as the run view's chart does.
+void set_round_range(QValueAxis* axis, double lo, double hi) {
+  const double raw_step = (hi - lo) / 6.0;
+  if (!(raw_step > 0.0) || !std::isfinite(raw_step)) {
+    axis->setRange(lo, hi);
+    return;
+  }
+  const double decade = std::pow(10.0, std::floor(std::log10(raw_step)));
+  double step = 10.0 * decade;
+  for (double m : {1.0, 2.0, 5.0}) {
+    if (m * decade >= raw_step) {
+      step = m * decade;
+      break;
+    }
+  }
+  const double round_lo = std::floor(lo / step + 1e-9) * step;
+  const double round_hi = std::ceil(hi / step - 1e-9) * step;
+  axis->setRange(round_lo, round_hi);
+  axis->setTickCount(static_cast<int>(std::lround((round_hi - round_lo) / step)) + 1);
+  // As many decimals as the step needs, so that neighbouring labels differ.
+  const double largest = std::max(std::abs(round_lo), std::abs(round_hi));
+  if (largest >= 1e6 || (largest > 0.0 && largest < 1e-4)) {
+    axis->setLabelFormat("%.3g");
+  } else {
+    const int decimals = std::max(0, static_cast<int>(std::ceil(-std::log10(step) - 1e-9)));
+    axis->setLabelFormat(QStringLiteral("%.%1f").arg(decimals));
+  }
+}
 
 Qt::PenStyle pen_style(ChartLine::Style style) {
   switch (style) {
@@ -119,13 +150,16 @@ QWidget* ReviewChart::widget() const {
 }
 
 void ReviewChart::clear(const QString& message) {
-  QChart* chart = parts_->chart;
-  chart->removeAllSeries();
-  for (QAbstractAxis* axis : chart->axes()) {
-    chart->removeAxis(axis);
-    delete axis;
-  }
-  chart->setTitle(message);
+  // A new chart each time: Qt Charts 6.4 can leave the old axes drawn when
+  // axes are removed from a chart that has not been laid out yet.
+  QChart* old = parts_->chart;
+  parts_->chart = new QChart();
+  parts_->chart->setAnimationOptions(QChart::NoAnimation);
+  parts_->chart->legend()->setAlignment(Qt::AlignBottom);
+  parts_->chart->setMargins(QMargins(2, 2, 2, 2));
+  parts_->chart->setTitle(message);
+  parts_->view->setChart(parts_->chart);
+  delete old;
 }
 
 QStringList ReviewChart::drawn_names() const {
@@ -159,30 +193,31 @@ void ReviewChart::show(const ChartContent& content) {
   QAbstractAxis* x_axis = nullptr;
   if (content.x_is_time) {
     auto* time_axis = new QDateTimeAxis();
-    time_axis->setFormat("yyyy-MM-dd");
+    // Days and times: a demo's or a busy day's values lie minutes apart.
+    time_axis->setFormat("MM-dd hh:mm");
     time_axis->setRange(QDateTime::fromMSecsSinceEpoch(static_cast<qint64>(x.lo), Qt::UTC),
                         QDateTime::fromMSecsSinceEpoch(static_cast<qint64>(x.hi), Qt::UTC));
     time_axis->setTickCount(5);
     x_axis = time_axis;
   } else {
     auto* value_axis = new QValueAxis();
-    value_axis->setRange(x.lo, x.hi);
-    value_axis->setLabelFormat("%.4g");
+    set_round_range(value_axis, x.lo, x.hi);
     x_axis = value_axis;
   }
   x_axis->setTitleText(content.x_title);
   auto* y_axis = new QValueAxis();
   y_axis->setTitleText(content.y_title);
-  y_axis->setRange(left.lo, left.hi);
-  y_axis->setLabelFormat("%.5g");
+  set_round_range(y_axis, left.lo, left.hi);
   chart->addAxis(x_axis, Qt::AlignBottom);
   chart->addAxis(y_axis, Qt::AlignLeft);
   QValueAxis* right_axis = nullptr;
   if (!content.right_title.isEmpty()) {
     right_axis = new QValueAxis();
     right_axis->setTitleText(content.right_title);
-    right_axis->setRange(right.lo, right.hi);
-    right_axis->setLabelFormat("%.4g");
+    set_round_range(right_axis, right.lo, right.hi);
+    // Short labels: Qt Charts would otherwise elide them to "..." when the
+    // right axis is sized before its labels are known.
+    right_axis->setTruncateLabels(false);
     chart->addAxis(right_axis, Qt::AlignRight);
   }
 
@@ -190,13 +225,28 @@ void ReviewChart::show(const ChartContent& content) {
     chart->addSeries(s);
     s->attachAxis(x_axis);
     s->attachAxis(on_right && right_axis ? right_axis : y_axis);
+    // An unnamed line is the twin of a named one (the lower of two limits).
+    if (s->name().isEmpty())
+      for (QLegendMarker* marker : chart->legend()->markers(s))
+        marker->setVisible(false);
   };
-  for (const auto& line : content.lines)
-    attach(make_series(line), line.right_axis);
+  for (const auto& line : content.lines) {
+    QAbstractSeries* series = make_series(line);
+    attach(series, line.right_axis);
+    if (!line.in_legend)
+      for (QLegendMarker* marker : chart->legend()->markers(series))
+        marker->setVisible(false);
+  }
+  // Rules span the whole (rounded) axes.
   for (const auto& rule : content.verticals)
-    attach(rule_series(rule, rule.value, left.lo, rule.value, left.hi), false);
+    attach(rule_series(rule, rule.value, y_axis->min(), rule.value, y_axis->max()), false);
+  double x_lo = x.lo, x_hi = x.hi;
+  if (auto* value_axis = qobject_cast<QValueAxis*>(x_axis)) {
+    x_lo = value_axis->min();
+    x_hi = value_axis->max();
+  }
   for (const auto& rule : content.horizontals)
-    attach(rule_series(rule, x.lo, rule.value, x.hi, rule.value), false);
+    attach(rule_series(rule, x_lo, rule.value, x_hi, rule.value), false);
 }
 
 }  // namespace veq::ui::review

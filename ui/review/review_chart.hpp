@@ -24,6 +24,7 @@ struct ChartLine {
   unsigned rgb = 0x1565C0;  ///< 0xRRGGBB
   Style style = Style::solid;
   bool right_axis = false;  ///< drawn against the right axis
+  bool in_legend = true;    ///< false: drawn, named for tests, left out of the legend
 };
 
 /// A straight line across the whole chart: vertical at an x value, or

@@ -209,12 +209,16 @@ Result<std::vector<ControlHistory>> control_histories(store::MethodStore& method
       auto results = series.load_entry_results(entry.id);
       if (!results)
         return results.error();
+      // A check standard repeated within a series is labelled "name #2": the
+      // occurrences are one quantity followed over time.
+      static const std::regex occurrence(R"( #[0-9]+$)");
+      const std::string label = std::regex_replace(entry.label, occurrence, "");
       for (const auto& r : *results) {
-        const std::string key = entry.label + '\n' + r.name + '\n' + r.unit;
+        const std::string key = label + '\n' + r.name + '\n' + r.unit;
         if (!checks.count(key)) {
           order.push_back(key);
           checks[key] =
-              ControlHistory{"check standard '" + entry.label + "' (" + r.name + ")", r.unit, {}};
+              ControlHistory{"check standard '" + label + "' (" + r.name + ")", r.unit, {}};
         }
         checks[key].points.push_back(ControlPoint{
             entry.finished_utc.empty() ? entry.started_utc : entry.finished_utc, r.value,

@@ -78,7 +78,7 @@ SuppliesView::SuppliesView(QWidget* parent)
   auto* top = new QGroupBox("Titrants, electrodes and burettes: what is in force now", splitter);
   auto* top_layout = new QVBoxLayout(top);
   overview_ =
-      make_table(top, {"kind", "name", "in force", "details", "status"}, "supplies_overview");
+      make_table(top, {"kind", "name", "status", "in force", "details"}, "supplies_overview");
   top_layout->addWidget(overview_);
   auto* bottom = new QGroupBox("History", splitter);
   auto* bottom_layout = new QVBoxLayout(bottom);
@@ -91,6 +91,7 @@ SuppliesView::SuppliesView(QWidget* parent)
   lower->addWidget(chart_->widget());
   lower->setStretchFactor(0, 3);
   lower->setStretchFactor(1, 2);
+  lower->setSizes({640, 480});
   bottom_layout->addWidget(lower, 1);
   message_ = new MessageLine(this);
   outer->addWidget(message_);
@@ -121,11 +122,11 @@ void SuppliesView::add_overview_row(Kind kind, const QString& name, const QStrin
   kind_item->setData(Qt::UserRole, static_cast<int>(kind));
   overview_->setItem(row, 0, kind_item);
   overview_->setItem(row, 1, new QTableWidgetItem(name));
-  overview_->setItem(row, 2, new QTableWidgetItem(current));
-  overview_->setItem(row, 3, new QTableWidgetItem(detail));
   auto* status_item = new QTableWidgetItem(q(status.text));
   style_status(status_item, status.state);
-  overview_->setItem(row, 4, status_item);
+  overview_->setItem(row, 2, status_item);
+  overview_->setItem(row, 3, new QTableWidgetItem(current));
+  overview_->setItem(row, 4, new QTableWidgetItem(detail));
 }
 
 Result<void> SuppliesView::reload() {
@@ -157,6 +158,13 @@ Result<void> SuppliesView::reload() {
               .arg(significant(in_force->conc_mol_per_l, 5), fixed(in_force->rsd_percent, 3))
               .arg(in_force->determinations_mol_per_l.size()),
           detail, expiry_status(true, in_force->expires_utc, now));
+    } else if (auto later = method::latest_accepted_titer(*titers, t.name, t.lot,
+                                                          method::TimePoint::max())) {
+      // Dated after now: a clock set wrong somewhere (or a simulated run ahead of it).
+      add_overview_row(
+          Kind::titrant, q(t.name), "no titer in force yet", detail,
+          {Freshness::none, "NOT YET IN FORCE: titer dated " + readable_utc(later->determined_utc) +
+                                ", after now (check the clocks)"});
     } else {
       add_overview_row(Kind::titrant, q(t.name), "no accepted titer", detail,
                        {Freshness::none, "NO TITER: determine one before use"});
@@ -196,6 +204,13 @@ Result<void> SuppliesView::reload() {
           QStringLiteral("at %1 °C, measured %2")
               .arg(fixed(in_force->temperature_c, 1), q(readable_utc(in_force->measured_utc))),
           expiry_status(true, in_force->expires_utc, now));
+    } else if (auto later = method::latest_accepted_calibration(*calibrations, e,
+                                                                method::TimePoint::max())) {
+      add_overview_row(Kind::electrode, q(e), "no calibration in force yet",
+                       QStringLiteral("%1 calibration(s) on record").arg(calibrations->size()),
+                       {Freshness::none, "NOT YET IN FORCE: calibration dated " +
+                                             readable_utc(later->measured_utc) +
+                                             ", after now (check the clocks)"});
     } else {
       add_overview_row(Kind::electrode, q(e), "no accepted calibration",
                        QStringLiteral("%1 calibration(s) on record").arg(calibrations->size()),
@@ -227,6 +242,7 @@ Result<void> SuppliesView::reload() {
         status);
   }
   overview_->resizeColumnsToContents();
+  overview_->resizeRowsToContents();
   message_->show_info(
       QStringLiteral("Judged at %1.").arg(q(readable_utc(method::format_utc(now)))));
   return {};
@@ -235,7 +251,7 @@ Result<void> SuppliesView::reload() {
 QString SuppliesView::status_of(const QString& name) const {
   for (int row = 0; row < overview_->rowCount(); ++row)
     if (overview_->item(row, 1)->text() == name)
-      return overview_->item(row, 4)->text();
+      return overview_->item(row, 2)->text();
   return {};
 }
 

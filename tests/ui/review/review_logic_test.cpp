@@ -37,7 +37,7 @@ TEST(Expiry, ExpiredValidSoonAndRefusedAreSaidInWords) {
   ASSERT_TRUE(now.has_value());
   auto expired = expiry_status(true, "2026-11-30T12:00:00.000Z", *now);
   EXPECT_EQ(expired.state, Freshness::expired);
-  EXPECT_EQ(expired.text, "EXPIRED 48 hours ago (2026-11-30 12:00 UTC)");
+  EXPECT_EQ(expired.text, "EXPIRED 2 days ago (2026-11-30 12:00 UTC)");
   auto soon = expiry_status(true, "2026-12-02T18:00:00.000Z", *now);
   EXPECT_EQ(soon.state, Freshness::expires_soon);
   EXPECT_EQ(soon.text, "expires in 6 hours (2026-12-02 18:00 UTC)");
