@@ -18,6 +18,10 @@ QString q(const std::string& s) {
   return QString::fromStdString(s);
 }
 
+/// Thrown out of the weighing's instruction callback when the operator
+/// aborts; never leaves the worker's job.
+struct WeighingCancelled {};
+
 }  // namespace
 
 /// Hears the series on the worker thread and posts every event to the GUI.
@@ -271,7 +275,13 @@ void RackWorker::weigh(const series::Series& s) {
         pause_wake_.wait(lock, [this] { return weighing_go_.load() || abort_.load(); });
         weighing_go_.store(false);
       }
-      if (bench != nullptr && !abort_.load()) {
+      // An abort (closing the window) ends the weighing here, before the
+      // next wait for a settled pan, which may take the balance's whole
+      // stable timeout. Caught below: weigh_portions holds nothing that
+      // needs undoing (the series copy is discarded).
+      if (abort_.load())
+        throw WeighingCancelled{};
+      if (bench != nullptr) {
         // On the simulated bench nobody's hands can reach the pan: veq puts
         // a 50 g beaker on it and then a portion near 0.25 g (invented,
         // different for each portion), as the instructions say.
@@ -286,7 +296,14 @@ void RackWorker::weigh(const series::Series& s) {
         }
       }
     };
-    auto outcome = series::weigh_portions(weighed_, *balance, rack_->clock(), ask);
+    series::WeighingOutcome outcome;
+    try {
+      outcome = series::weigh_portions(weighed_, *balance, rack_->clock(), ask);
+    } catch (const WeighingCancelled&) {
+      weighed_ = s;
+      outcome = {};
+      outcome.notes.push_back("weighing cancelled; no mass was written");
+    }
     if (bench != nullptr)
       bench->balance().place(-on_pan_g);
     busy_.store(false);

@@ -40,8 +40,10 @@ QApplication& application() {
   static int argc = 1;
   static char name[] = "veq_desktop_tests";
   static char* argv[] = {name, nullptr};
-  static QApplication app(argc, argv);
-  return app;
+  // Never destroyed: QTest's input devices belong to the application, and
+  // Qt 6.4 crashes deleting them from a static destructor at exit.
+  static QApplication* app = new QApplication(argc, argv);
+  return *app;
 }
 
 /// Processes events until `done` holds or `timeout_ms` of wall time pass.
@@ -486,6 +488,23 @@ TEST_F(Desktop, MassesAreReadFromTheSimulatedBalanceIntoTheQueue) {
   EXPECT_NEAR(entry->portions[0].mass_g, 0.2400, 0.001);
   EXPECT_NEAR(entry->portions[1].mass_g, 0.2437, 0.001);
   EXPECT_TRUE(entry->portions[0].from_balance);
+}
+
+TEST_F(Desktop, AbortingAWeighingWritesNoMass) {
+  MainWindow window(nullptr, options());
+  ASSERT_NO_FATAL_FAILURE(connect_simulated(window));
+  SeriesView& view = window.series();
+  ASSERT_TRUE(view.paste_text(
+      "river\tsample\tcalcium in drinking water\t2\t\tg from balance\t\t\t11, 12\n"));
+  ASSERT_TRUE(view.read_masses());
+  ASSERT_TRUE(wait_until([&] { return !view.instruction().isEmpty(); }));
+  EXPECT_TRUE(view.instruction().startsWith("Put the empty vessel"))
+      << view.instruction().toStdString();
+  view.abort();
+  ASSERT_TRUE(wait_until([&] { return !view.running(); }));
+  EXPECT_TRUE(view.message().contains("weighing cancelled")) << view.message().toStdString();
+  EXPECT_EQ(view.rows()[0].cell(QueueColumn::size), "");
+  EXPECT_FALSE(window.worker().busy());
 }
 
 TEST_F(Desktop, LayoutAndConnectionsAreRememberedAndViewsFollowTheKeyboard) {
