@@ -503,8 +503,10 @@ void save_screenshot(QWidget& widget, const std::string& name) {
   widget.show();
   QApplication::processEvents();
   const fs::path out = fs::path(VEQ_SOURCE_DIR) / "docs" / "screenshots" / name;
-  const QImage image = widget.grab().toImage().convertToFormat(QImage::Format_Indexed8);
-  ASSERT_TRUE(image.save(QString::fromStdString(out.string()), "PNG")) << out;
+  const QImage image = widget.grab().toImage().convertToFormat(
+      QImage::Format_Indexed8, Qt::ThresholdDither | Qt::AvoidDither);
+  ASSERT_TRUE(image.save(QString::fromStdString(out.string()), "PNG", 0))
+      << out;  // 0: smallest file
   EXPECT_GT(fs::file_size(out), 10000u) << out;
 }
 
@@ -522,7 +524,9 @@ TEST_F(ReviewStore, ScreenshotsOfEachViewWithDemoData) {
     ASSERT_TRUE(view.set_store(store_.get()));
     // A sample's run reads better than the conditioning run.
     std::int64_t run_id = evaluated_run();
-    for (const auto& r : *store_->list_runs())
+    auto runs = store_->list_runs();
+    ASSERT_TRUE(runs.has_value());
+    for (const auto& r : *runs)
       if (r.run.sample_id == "Ferncombe spring" && r.status == store::RunStatus::completed)
         run_id = r.id;
     ASSERT_TRUE(view.show_run(run_id));
