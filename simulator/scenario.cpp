@@ -417,6 +417,8 @@ Result<Scenario> parse_scenario(std::string_view json_text, std::string_view sou
     if (const json* j = r.section(doc, "sample", false)) {
       r.number(*j, "sample", "blank_metal_mol", s.sample.blank_metal_mol, false, 0.0, 1.0);
       r.number(*j, "sample", "reaction_time_s", s.sample.reaction_time_s, false, 0.0, 3600.0);
+      r.number(*j, "sample", "buffer_capacity_mol_per_ph", s.sample.buffer_capacity_mol_per_ph,
+               false, 0.0, 100.0);
     }
   } else if (const json* j = general ? nullptr : r.section(doc, "sample", true)) {
     r.text(*j, "sample", "metal", s.sample.metal);

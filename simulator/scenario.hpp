@@ -33,7 +33,10 @@ struct SampleSpec {
   /// base dosed by the auxiliary doser moves the pH linearly,
   /// pH = ph - net strong acid mol / capacity, clamped to 0..14 (a linear
   /// approximation of a buffer, good for small moves near its pKa). 0: the
-  /// pH stays fixed whatever is added (an ideal buffer, as before).
+  /// pH stays fixed whatever is added (an ideal buffer, as before). With a
+  /// chemistry section it moves the section's fixed "ph" the same way (the
+  /// section must fix one), so that a vessel can be titrated at one pH and
+  /// then at another.
   double buffer_capacity_mol_per_ph = 0.0;
 };
 
@@ -133,7 +136,8 @@ struct ReagentSpec {
   /// Strong acid in the reagent, mol/L (negative: strong base). It moves the
   /// vessel's pH when the scenario's chemistry section leaves pH to the
   /// proton balance (no fixed "ph"), or in the 1:1 model when the sample
-  /// has a buffer_capacity_mol_per_ph; otherwise the pH stays fixed.
+  /// has a buffer_capacity_mol_per_ph (with a chemistry section too, whose
+  /// fixed "ph" it then moves); otherwise the pH stays fixed.
   double strong_acid_mol_per_l = 0.0;
 };
 

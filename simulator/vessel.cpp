@@ -98,6 +98,18 @@ Result<VesselModel> VesselModel::create(const Scenario& scenario,
                                                     scenario.chemistry.blank_metal +
                                                     "' is not a metal of the sample");
   }
+  v.capacity_mol_per_ph_ = scenario.sample.buffer_capacity_mol_per_ph;
+  if (v.capacity_mol_per_ph_ > 0.0) {
+    // Acid and base from the doser move a fixed pH through the buffer
+    // capacity, as in the 1:1 model; a pH left to the proton balance
+    // follows them by itself, so a capacity there would count them twice.
+    if (!v.base_.ph) {
+      return make_error(ErrorKind::invalid_input,
+                        "buffer_capacity_mol_per_ph needs a fixed \"ph\" in the chemistry "
+                        "section (without one the pH follows the proton balance)");
+    }
+    v.ph0_ = v.ph_ = *v.base_.ph;
+  }
   v.premixed_ml_ =
       scenario.chemistry.premixed_titrant_mol * 1000.0 / v.base_.titrant.conc_mol_per_l;
   if (!(v.premixed_ml_ < 0.5 * v.base_.sample_volume_ml)) {
@@ -154,6 +166,14 @@ Result<void> VesselModel::rebuild(const VesselContent& c) {
     s.indicator->conc_mol_per_l *= f;
   s.strong_acid_mol_per_l =
       (base_.strong_acid_mol_per_l * v0 + c.strong_acid_mol * 1000.0) / s.sample_volume_ml;
+  if (capacity_mol_per_ph_ > 0.0) {
+    // A linear buffer (see SampleSpec::buffer_capacity_mol_per_ph): the
+    // engine then solves at that pH, so each metal's conditional constant
+    // follows the acid and base dosed, and a metal that did not react at
+    // the first pH reacts at the second.
+    ph_ = std::clamp(ph0_ - c.strong_acid_mol / capacity_mol_per_ph_, 0.0, 14.0);
+    s.ph = ph_;
+  }
   absorbance_known_ = false;
   if (wavelength_nm_ && s.indicator) {
     chemistry::SampleComposition a = s;

@@ -102,7 +102,9 @@ class VesselModel {
   std::string metal_name_;
   SecondTitrantSpec second_;
   VesselSpecies second_species_;
-  // pH and what the conditional constants need to follow it
+  // pH and what the conditional constants need to follow it (the general
+  // model uses ph0_, ph_ and the capacity when its pH is fixed and the
+  // scenario gives a buffer capacity)
   std::vector<double> pka_;
   double ph0_ = 7.0;
   double ph_ = 7.0;
