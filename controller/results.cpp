@@ -75,6 +75,43 @@ veq::Result<TwoMetalAmounts> amounts_from_total_and_first(const TitrantVolume& t
   return TwoMetalAmounts{*f, std::max(0.0, *t - *f)};
 }
 
+veq::Result<CountedTitrant> titrant_between(const std::vector<StageReading>& stages,
+                                            std::size_t from_stage, bool from_endpoint,
+                                            std::size_t to_stage) {
+  if (from_stage < 1 || to_stage > stages.size() || from_stage > to_stage) {
+    return invalid_input("stages " + std::to_string(from_stage) + " to " +
+                         std::to_string(to_stage) + " are not within the " +
+                         std::to_string(stages.size()) + " stages measured");
+  }
+  if (from_endpoint && from_stage == to_stage)
+    return invalid_input("counting from a stage's own endpoint to itself counts nothing");
+  for (std::size_t k = from_stage; k <= to_stage; ++k) {
+    const StageReading& s = stages[k - 1];
+    if (!std::isfinite(s.endpoint_ml) || !std::isfinite(s.dosed_ml) ||
+        !std::isfinite(s.endpoint_uncertainty_ml) || s.endpoint_ml < 0.0)
+      return invalid_input("stage " + std::to_string(k) +
+                           ": endpoint and dosed volume must be "
+                           "finite and not negative");
+    if (k < to_stage && s.endpoint_ml > s.dosed_ml + 1e-9)
+      return invalid_input("stage " + std::to_string(k) + ": endpoint " +
+                           message_number(s.endpoint_ml) + " mL lies beyond the " +
+                           message_number(s.dosed_ml) + " mL the stage dosed");
+  }
+  CountedTitrant out;
+  for (std::size_t k = from_stage; k < to_stage; ++k)
+    out.volume_ml += stages[k - 1].dosed_ml;
+  const StageReading& last = stages[to_stage - 1];
+  out.volume_ml += last.endpoint_ml;
+  double u2 = last.endpoint_uncertainty_ml * last.endpoint_uncertainty_ml;
+  if (from_endpoint) {
+    const StageReading& first = stages[from_stage - 1];
+    out.volume_ml -= first.endpoint_ml;
+    u2 += first.endpoint_uncertainty_ml * first.endpoint_uncertainty_ml;
+  }
+  out.uncertainty_ml = std::sqrt(u2);
+  return out;
+}
+
 const char* result_unit_name(ResultUnit unit) noexcept {
   switch (unit) {
     case ResultUnit::mol_per_l:

@@ -56,6 +56,38 @@ struct TwoMetalAmounts {
 veq::Result<TwoMetalAmounts> amounts_from_total_and_first(const TitrantVolume& total,
                                                           const TitrantVolume& first);
 
+/// One stage of a vessel titrated in stages (a first metal at one pH, a
+/// second after the pH was changed), as the burette counted it: its counter
+/// starts at 0 with each stage's titration.
+struct StageReading {
+  double endpoint_ml = 0.0;  ///< the stage's endpoint, mL from the stage's start
+  /// All the stage dosed (its last reading), mL. The titrant dosed past the
+  /// endpoint stays in the vessel and reacts in the next stage.
+  double dosed_ml = 0.0;
+  double endpoint_uncertainty_ml = 0.0;  ///< standard uncertainty of the endpoint, mL
+};
+
+/// Titrant counted over stages, mL, with the standard uncertainty of the
+/// endpoints it rests on.
+struct CountedTitrant {
+  double volume_ml = 0.0;
+  double uncertainty_ml = 0.0;
+};
+
+/// mL of titrant from a point of stage `from_stage` (its start, or its
+/// endpoint if `from_endpoint`) to the endpoint of stage `to_stage` (stages
+/// numbered from 1, from_stage <= to_stage, all with one titrant):
+///   V = dosed(from) + ... + dosed(to - 1) + endpoint(to)
+///       - (from_endpoint ? endpoint(from) : 0).
+/// From stage 1's start: the titrant of every metal titrated up to `to`;
+/// from the endpoint of the stage before: the second metal's own. The
+/// endpoints used combine in quadrature (the burette's own tolerance is
+/// the budget's business). Errors: a stage out of range, counting from the
+/// endpoint of the stage itself, an endpoint beyond what its stage dosed.
+veq::Result<CountedTitrant> titrant_between(const std::vector<StageReading>& stages,
+                                            std::size_t from_stage, bool from_endpoint,
+                                            std::size_t to_stage);
+
 // ---------------------------------------------------------------------------
 // Concentrations
 

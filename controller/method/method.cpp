@@ -20,6 +20,37 @@ std::vector<std::string_view> result_units() {
   return {"mol/L", "mmol/L", "mg/L", "% w/w", "mg/kg"};
 }
 
+const char* counted_from_name(CountedFrom from) {
+  switch (from) {
+    case CountedFrom::stage_start:
+      return "stage start";
+    case CountedFrom::previous_endpoint:
+      return "previous endpoint";
+    case CountedFrom::first_stage_start:
+      return "first stage start";
+  }
+  return "unknown";
+}
+
+std::vector<std::string_view> counted_from_names() {
+  return {"stage start", "previous endpoint", "first stage start"};
+}
+
+std::vector<ResultRule> result_rules(const Method& method) {
+  std::vector<ResultRule> rules = {method.result};
+  rules.insert(rules.end(), method.more_results.begin(), method.more_results.end());
+  return rules;
+}
+
+std::vector<std::size_t> titration_stages(const std::vector<Step>& steps) {
+  std::vector<std::size_t> stages;
+  for (std::size_t i = 0; i < steps.size(); ++i)
+    if (std::holds_alternative<TitrateStep>(steps[i]) ||
+        std::holds_alternative<BackTitrateStep>(steps[i]))
+      stages.push_back(i);
+  return stages;
+}
+
 const char* step_kind_name(const Step& step) {
   return std::visit(
       [](const auto& s) -> const char* {

@@ -7,6 +7,7 @@
 // and calibrations are valid before a series uses it.
 #pragma once
 
+#include <cstddef>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -47,9 +48,30 @@ struct Indication {
   bool operator==(const Indication&) const = default;
 };
 
-/// The result a run computes from its endpoint, and the limits it must keep.
+/// Where a result's titrant volume starts counting (stored in method files
+/// as names: append-only).
+enum class CountedFrom : int {
+  /// The stage's own titration from its start: its endpoint as the burette
+  /// counted it in that stage alone (what a one-stage method always did).
+  stage_start = 1,
+  /// The endpoint of the stage before, with the same titrant: the titrant
+  /// dosed past that endpoint stays in the vessel and reacts in this stage,
+  /// so it counts here (the second metal of a two-stage titration).
+  previous_endpoint = 2,
+  /// The start of the first stage, every stage with the same titrant: the
+  /// titrant for all metals titrated up to this stage's endpoint together.
+  first_stage_start = 3,
+};
+const char* counted_from_name(CountedFrom from);
+/// "stage start", "previous endpoint", "first stage start"
+std::vector<std::string_view> counted_from_names();
+
+/// A result a run computes from an endpoint, and the limits it must keep.
+/// A method has one, or one per metal when it titrates in stages: titrate
+/// steps (or an add titrant step with its back titrate step) each followed
+/// by its evaluate step are stages 1, 2, ... in the order they run.
 struct ResultRule {
-  std::string analyte;  ///< metal determined ("calcium", "nickel")
+  std::string analyte;  ///< metal determined ("calcium", "nickel"); unique within a method
   double molar_mass_g_per_mol = 0.0;
   /// Stoichiometry: mol analyte per mol titrant at the endpoint (1 for EDTA
   /// with a divalent metal).
@@ -63,6 +85,14 @@ struct ResultRule {
   /// `replicate_difference_relative`, else in `unit`. Unset: not checked.
   std::optional<double> largest_replicate_difference;
   bool replicate_difference_relative = true;
+  /// The titration stage the result is read from, 1 for the first; 0: the
+  /// last stage (a one-stage method's only one).
+  int stage = 0;
+  CountedFrom counted_from = CountedFrom::stage_start;
+  /// Analyte of an earlier result of the method whose titrant volume is
+  /// subtracted: the second metal as the difference (total - first). Empty:
+  /// nothing subtracted.
+  std::string less;
   bool operator==(const ResultRule&) const = default;
 };
 
@@ -169,6 +199,14 @@ std::vector<std::string_view> dosing_option_names();
 /// for controller::dosing_plan_from_json().
 nlohmann::json dosing_plan_json(const TitrateStep& step);
 
+struct Method;
+/// Every result rule of a method: `result`, then `more_results`.
+std::vector<ResultRule> result_rules(const Method& method);
+
+/// The indices into Method::steps of the titrate and back titrate steps:
+/// element k is stage k + 1.
+std::vector<std::size_t> titration_stages(const std::vector<Step>& steps);
+
 struct Method {
   std::string name;
   int version = 1;  ///< given by the store: 1, 2, 3...
@@ -177,7 +215,13 @@ struct Method {
   std::vector<TitrantUse> titrants;
   std::vector<ReagentUse> reagents;
   Indication indication;
+  /// The method's result, or the first of them when it titrates in stages
+  /// and gives one per metal; entries that give one value (titer, check
+  /// standard) use it.
   ResultRule result;
+  /// The results after the first, in the order of the file; most methods
+  /// have none. result_rules() gives all of them.
+  std::vector<ResultRule> more_results;
   std::vector<Step> steps;
   bool operator==(const Method&) const = default;
 };

@@ -33,7 +33,17 @@ struct Lines {
   std::vector<std::map<std::string, int>> step_key;  ///< line of each key of each step
   std::vector<int> titrant;
   std::vector<int> reagent;
-  int end = 0;  ///< last line of the file
+  std::vector<int> result;                             ///< section line of each result
+  std::vector<std::map<std::string, int>> result_key;  ///< line of each key of each result
+  int end = 0;                                         ///< last line of the file
+  int result_field(std::size_t i, const std::string& key) const {
+    if (i < result_key.size()) {
+      auto it = result_key[i].find(key);
+      if (it != result_key[i].end())
+        return it->second;
+    }
+    return i < result.size() ? result[i] : end;
+  }
   int field(std::size_t i, const std::string& key) const {
     if (i < step_key.size()) {
       auto it = step_key[i].find(key);
@@ -90,6 +100,47 @@ const std::vector<std::string_view> kTitrateKeys = {"kind",
                                                     "settling window",
                                                     "shortest wait",
                                                     "longest wait"};
+
+ResultRule read_result(Reader& r) {
+  ResultRule res;
+  res.analyte = r.text("analyte");
+  res.molar_mass_g_per_mol = r.quantity("molar mass", kMolarMass, 0.0, 1000.0, std::nullopt, true);
+  res.analyte_per_titrant = r.quantity("analyte per titrant", kNone, 0.0, 10.0, 1.0, true);
+  res.unit = r.choice("unit", result_units());
+  const std::vector<Unit> result_unit = {{res.unit, 1.0}};
+  for (const char* key : {"lowest", "highest"}) {
+    if (Entry* e = r.find(key)) {
+      auto v = r.parse_quantity(e->value, e->line, key, result_unit);
+      if (v)
+        (std::string(key) == "lowest" ? res.lowest : res.highest) = *v;
+    }
+  }
+  if (res.lowest && res.highest && *res.highest <= *res.lowest)
+    r.errors().add(r.line_of("highest"), "highest", "must be above lowest");
+  if (Entry* e = r.find("largest replicate difference")) {
+    const std::vector<Unit> either = {{"%", 1.0}, {res.unit, 1.0}};
+    auto v = r.parse_quantity(e->value, e->line, e->key, either);
+    if (v) {
+      // "%" alone is relative; "% w/w" is the result unit itself.
+      const auto unit_at = e->value.find_first_not_of("0123456789.+-eE ");
+      res.replicate_difference_relative =
+          unit_at != std::string::npos && normal_key(e->value.substr(unit_at)) == "%";
+      res.largest_replicate_difference = *v;
+      if (!(*v > 0.0))
+        r.errors().add(e->line, e->key, "must be above 0");
+    }
+  }
+  res.stage = r.integer("stage", 1, 100, 0);
+  const std::string from = r.choice("counted from", counted_from_names(), "stage start");
+  for (CountedFrom c :
+       {CountedFrom::stage_start, CountedFrom::previous_endpoint, CountedFrom::first_stage_start})
+    if (from == counted_from_name(c))
+      res.counted_from = c;
+  res.less = r.text("less", "");
+  r.finish({"analyte", "molar mass", "analyte per titrant", "unit", "lowest", "highest",
+            "largest replicate difference", "stage", "counted from", "less"});
+  return res;
+}
 
 std::optional<Step> read_step(Reader& r) {
   const std::string kind = r.choice("kind", step_kind_names());
@@ -201,6 +252,83 @@ std::optional<Step> read_step(Reader& r) {
   s.times = r.integer("times", 1, 10, 1);
   r.finish({"kind", "liquid", "volume", "times"});
   return s;
+}
+
+/// The titrant of a plain titrate step at a stage (1-based), or nothing if
+/// the stage is a back-titration.
+std::optional<std::string> direct_titrant(const Method& m, const std::vector<std::size_t>& stages,
+                                          int stage) {
+  const auto* t = std::get_if<TitrateStep>(&m.steps[stages[static_cast<std::size_t>(stage - 1)]]);
+  return t ? std::optional<std::string>(t->titrant) : std::nullopt;
+}
+
+/// The result rules against the stages: each names a stage that exists,
+/// counts from a point that titrant of its own kind reaches, and subtracts
+/// only an earlier result of the same titrant.
+void check_results(const Method& m, const Lines& lines, Errors& errors) {
+  const auto stages = titration_stages(m.steps);
+  const int count = static_cast<int>(stages.size());
+  const std::vector<ResultRule> results = result_rules(m);
+  for (std::size_t i = 0; i < results.size(); ++i) {
+    const ResultRule& r = results[i];
+    auto at = [&](const std::string& key) { return lines.result_field(i, key); };
+    for (std::size_t j = 0; j < i; ++j)
+      if (results[j].analyte == r.analyte)
+        errors.add(at("analyte"), "analyte",
+                   "result '" + r.analyte + "' is already given at line " +
+                       std::to_string(lines.result_field(j, "analyte")) +
+                       " (each result needs its own analyte name)");
+    if (r.stage > count) {
+      errors.add(at("stage"), "stage",
+                 "stage " + std::to_string(r.stage) + " does not exist: the method titrates in " +
+                     std::to_string(count) + (count == 1 ? " stage" : " stages"));
+      continue;
+    }
+    const int stage = r.stage == 0 ? count : r.stage;
+    const auto titrant = direct_titrant(m, stages, stage);
+    if (r.counted_from != CountedFrom::stage_start) {
+      const int first = r.counted_from == CountedFrom::previous_endpoint ? stage - 1 : 1;
+      if (stage < 2) {
+        errors.add(at("counted from"), "counted from",
+                   std::string("'") + counted_from_name(r.counted_from) +
+                       "' needs a stage before this result's stage 1");
+        continue;
+      }
+      for (int k = first; k <= stage; ++k) {
+        const auto other = direct_titrant(m, stages, k);
+        if (other && titrant && *other == *titrant)
+          continue;
+        const std::string why = !titrant ? "stage " + std::to_string(stage) + " is a back-titration"
+                                : !other ? "stage " + std::to_string(k) + " is a back-titration"
+                                         : "stage " + std::to_string(k) + " titrates with '" +
+                                               *other + "', stage " + std::to_string(stage) +
+                                               " with '" + *titrant + "'";
+        errors.add(at("counted from"), "counted from",
+                   std::string("'") + counted_from_name(r.counted_from) + "' needs stages " +
+                       std::to_string(first) + " to " + std::to_string(stage) +
+                       " to be titrate steps with one titrant (" + why + ")");
+        break;
+      }
+    }
+    if (!r.less.empty()) {
+      std::optional<std::size_t> earlier;
+      for (std::size_t j = 0; j < i; ++j)
+        if (results[j].analyte == r.less)
+          earlier = j;
+      if (!earlier) {
+        errors.add(at("less"), "less",
+                   "'" + r.less + "' is not the analyte of a result given before this one");
+        continue;
+      }
+      const int other_stage = results[*earlier].stage == 0 ? count : results[*earlier].stage;
+      const auto other = direct_titrant(m, stages, other_stage);
+      if (!titrant || !other || *other != *titrant)
+        errors.add(at("less"), "less",
+                   "result '" + r.less + "' (stage " + std::to_string(other_stage) +
+                       ") and this one (stage " + std::to_string(stage) +
+                       ") must both come from titrate steps with one titrant");
+    }
+  }
 }
 
 /// Checks between sections and the order of steps; `lines` locates errors.
@@ -324,6 +452,8 @@ void check_structure(const Method& m, const Lines& lines, Errors& errors) {
   if (excess != kNoStep)
     errors.add(lines.field(excess, "kind"), "kind",
                "the excess added here is never titrated back (add a back titrate step)");
+  if (any_titration)
+    check_results(m, lines, errors);
 }
 
 }  // namespace
@@ -384,39 +514,14 @@ Result<Method> parse_method(std::string_view text, const std::string& origin) {
       m.indication.needs_calibration = r.yes_no("needs calibration", true);
       r.finish({"kind", "name", "needs calibration"});
     } else if (section.name == "result") {
-      once(have_result);
       Reader r(section, errors, "[result] section");
-      ResultRule& res = m.result;
-      res.analyte = r.text("analyte");
-      res.molar_mass_g_per_mol =
-          r.quantity("molar mass", kMolarMass, 0.0, 1000.0, std::nullopt, true);
-      res.analyte_per_titrant = r.quantity("analyte per titrant", kNone, 0.0, 10.0, 1.0, true);
-      res.unit = r.choice("unit", result_units());
-      const std::vector<Unit> result_unit = {{res.unit, 1.0}};
-      for (const char* key : {"lowest", "highest"}) {
-        if (Entry* e = r.find(key)) {
-          auto v = r.parse_quantity(e->value, e->line, key, result_unit);
-          if (v)
-            (std::string(key) == "lowest" ? res.lowest : res.highest) = *v;
-        }
-      }
-      if (res.lowest && res.highest && *res.highest <= *res.lowest)
-        errors.add(r.line_of("highest"), "highest", "must be above lowest");
-      if (Entry* e = r.find("largest replicate difference")) {
-        const std::vector<Unit> either = {{"%", 1.0}, {res.unit, 1.0}};
-        auto v = r.parse_quantity(e->value, e->line, e->key, either);
-        if (v) {
-          // "%" alone is relative; "% w/w" is the result unit itself.
-          const auto unit_at = e->value.find_first_not_of("0123456789.+-eE ");
-          res.replicate_difference_relative =
-              unit_at != std::string::npos && normal_key(e->value.substr(unit_at)) == "%";
-          res.largest_replicate_difference = *v;
-          if (!(*v > 0.0))
-            errors.add(e->line, e->key, "must be above 0");
-        }
-      }
-      r.finish({"analyte", "molar mass", "analyte per titrant", "unit", "lowest", "highest",
-                "largest replicate difference"});
+      (have_result ? m.more_results.emplace_back() : m.result) = read_result(r);
+      have_result = true;
+      lines.result.push_back(section.line);
+      std::map<std::string, int> keys;
+      for (const auto& e : section.entries)
+        keys[e.key] = e.line;
+      lines.result_key.push_back(std::move(keys));
     } else {
       Reader r(section, errors, "step");
       auto step = read_step(r);
@@ -473,20 +578,30 @@ std::string write_method(const Method& m) {
   put("kind", indication_kind_name(m.indication.kind));
   put("name", one_line(m.indication.name));
   put("needs calibration", m.indication.needs_calibration ? "yes" : "no");
-  const ResultRule& res = m.result;
-  out << "\n[result]\n";
-  put("analyte", one_line(res.analyte));
-  put("molar mass", number(res.molar_mass_g_per_mol) + " g/mol");
-  put("analyte per titrant", number(res.analyte_per_titrant));
-  put("unit", res.unit);
-  if (res.lowest)
-    put("lowest", number(*res.lowest) + " " + res.unit);
-  if (res.highest)
-    put("highest", number(*res.highest) + " " + res.unit);
-  if (res.largest_replicate_difference) {
-    put("largest replicate difference",
-        number(*res.largest_replicate_difference) + " " +
-            (res.replicate_difference_relative ? std::string("%") : res.unit));
+  const std::vector<ResultRule> results = result_rules(m);
+  for (const ResultRule& res : results) {
+    out << "\n[result]\n";
+    put("analyte", one_line(res.analyte));
+    put("molar mass", number(res.molar_mass_g_per_mol) + " g/mol");
+    put("analyte per titrant", number(res.analyte_per_titrant));
+    put("unit", res.unit);
+    if (res.lowest)
+      put("lowest", number(*res.lowest) + " " + res.unit);
+    if (res.highest)
+      put("highest", number(*res.highest) + " " + res.unit);
+    if (res.largest_replicate_difference) {
+      put("largest replicate difference",
+          number(*res.largest_replicate_difference) + " " +
+              (res.replicate_difference_relative ? std::string("%") : res.unit));
+    }
+    // A method with one result from its last stage is written as it always
+    // was; stages are named once there is more to say.
+    if (res.stage != 0)
+      put("stage", std::to_string(res.stage));
+    if (res.counted_from != CountedFrom::stage_start || results.size() > 1)
+      put("counted from", counted_from_name(res.counted_from));
+    if (!res.less.empty())
+      put("less", one_line(res.less));
   }
   const std::string drift_unit =
       m.indication.kind == IndicationKind::electrode ? " mV/min" : " per min";

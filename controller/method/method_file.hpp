@@ -12,7 +12,8 @@
 //   reagent = ammonia buffer pH 10
 //   volume = 2 mL
 //
-// Sections [method], [indication] and [result] appear once; [titrant],
+// Sections [method] and [indication] appear once; [result] once per result
+// (a method titrating in stages may give one per metal); [titrant],
 // [reagent] and [step] as often as needed, steps in the order they run.
 // Quantities carry their unit ("2 mL", "90 s", "1.5 min"). docs/methods.md
 // lists every section, key, unit and default.
@@ -31,7 +32,8 @@ namespace veq::method {
 /// key, a missing required field, a value out of range or in the wrong unit,
 /// an unknown step kind, a titrant or reagent not declared, steps in an
 /// impossible order (evaluate before any titration, a titration never
-/// evaluated, a back-titration without an excess added before it).
+/// evaluated, a back-titration without an excess added before it), a result
+/// naming a stage that does not exist or another result that is not before it.
 Result<Method> parse_method(std::string_view text, const std::string& origin = "method file");
 
 /// Writes a method file; parse_method(write_method(m)) == m for every method

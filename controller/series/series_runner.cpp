@@ -42,24 +42,62 @@ Failure device_failure(const std::string& what, const Error& e) {
   return Failure{Reach::series, what + ": " + e.describe()};
 }
 
-/// What one determination measured.
+/// One titration stage of a determination (a titrate step, or an add
+/// titrant step with its back titrate step).
+struct StageMeasured {
+  std::int64_t run_id = 0;
+  std::string titrated_with;
+  double endpoint_ml = 0.0;  ///< burette reading from the stage's own start, mL
+  double endpoint_uncertainty_ml = 0.0;
+  double dosed_ml = 0.0;  ///< the stage's last recorded burette reading: all it dosed, mL
+  bool back_titration = false;
+  double excess_ml = 0.0;  ///< titrant added as an excess before the back-titration, mL
+  std::string excess_titrant;
+};
+
+/// What one determination measured: its stages in the order they ran.
 struct Measured {
   int position = 0;
-  std::int64_t run_id = 0;
-  std::int64_t second_run_id = 0;
-  double endpoint_ml = 0.0;  ///< of the (last) titration
-  double endpoint_uncertainty_ml = 0.0;
-  double excess_ml = 0.0;  ///< titrant added as an excess before a back-titration
+  std::vector<StageMeasured> stages;
+  /// An excess added and not yet titrated back (it belongs to the next stage).
+  double excess_ml = 0.0;
   std::string excess_titrant;
-  std::string titrated_with;
-  bool back_titration = false;
+  std::int64_t run_id(std::size_t stage) const {
+    return stage < stages.size() ? stages[stage].run_id : 0;
+  }
+};
+
+/// The titrant a result rule counts in one determination.
+struct RuleVolume {
+  int stage = 0;  ///< 1-based
+  std::string titrant;
+  double volume_ml = 0.0;  ///< of `titrant`, mL
+  double uncertainty_ml = 0.0;
+  json detail;
 };
 
 /// One value of a determination with its inputs.
 struct Value {
   double value = 0.0;
   json detail;
+  int stage = 0;
+  double volume_ml = 0.0;
+  double uncertainty_ml = 0.0;
+  std::string titrant;
 };
+
+/// The values a result collects over an entry's determinations.
+struct ResultValues {
+  std::vector<double> values;
+  std::vector<double> endpoint_volumes;
+  std::vector<double> endpoint_uncertainties;
+  std::string titrant;
+};
+
+/// The key of a blank volume: one per method and result.
+std::string blank_key(const method::Method& m, const std::string& analyte) {
+  return m.name + "\n" + analyte;
+}
 
 class SeriesRun {
  public:
@@ -221,6 +259,15 @@ class SeriesRun {
     return Failure{Reach::series, reason};
   }
 
+  /// The result rules an entry computes: every one for samples and blanks
+  /// (each result subtracts its own blank); the first for entries that give
+  /// one value (titer, check standard, conditioning).
+  static std::vector<method::ResultRule> rules_of(const Entry& entry, const method::Method& m) {
+    if (entry.kind == EntryKind::sample || entry.kind == EntryKind::blank)
+      return method::result_rules(m);
+    return {m.result};
+  }
+
   /// Sample, check standard, blank, titer and conditioning entries.
   std::optional<Failure> run_titrations(const Entry& entry, const method::Method& m,
                                         std::optional<std::size_t> use) {
@@ -246,6 +293,7 @@ class SeriesRun {
       return Failure{Reach::series, "check standard '" + entry.id + "' expects a value in " +
                                         entry.expected_unit + " but method '" + m.name +
                                         "' gives " + m.result.unit};
+    const std::vector<method::ResultRule> rules = rules_of(entry, m);
 
     // Positions: a repeating check standard takes one per occurrence.
     std::vector<int> positions = entry.positions;
@@ -272,9 +320,7 @@ class SeriesRun {
                                         : entry.portions[std::min(i, entry.portions.size() - 1)];
     };
 
-    std::vector<double> values;
-    std::vector<double> endpoint_volumes;
-    std::vector<double> endpoint_uncertainties;
+    std::vector<ResultValues> collected(rules.size());
     int replicate_no = 0;
     int planned = replicates;
     bool extra_asked = false;
@@ -305,8 +351,8 @@ class SeriesRun {
         d.entry_id = entry_->entry_id;
         d.replicate = replicate_no;
         d.position = position;
-        d.run_id = got.run_id;
-        d.second_run_id = got.second_run_id;
+        d.run_id = got.run_id(0);
+        d.second_run_id = got.run_id(1);
         if (failure && failure->reach == Reach::series) {
           d.counted = false;
           d.flags = "failed";
@@ -314,13 +360,13 @@ class SeriesRun {
           (void)store_determination(d);
           return failure;
         }
-        std::optional<Value> value;
+        std::vector<Value> value;
         if (!failure) {
-          auto v = compute_value(entry, m, got, portion_for(portion_index), ready);
+          auto v = compute_values(entry, m, rules, got, portion_for(portion_index), ready);
           if (!v)
             failure = Failure{Reach::sample, v.error().message};
           else
-            value = *v;
+            value = std::move(*v);
         }
         if (failure) {
           d.counted = false;
@@ -336,50 +382,110 @@ class SeriesRun {
           flag("replicate " + std::to_string(slot + 1) + " gave no value");
           break;
         }
-        d.value = value->value;
-        d.unit = unit_of(entry, m);
-        d.detail_json = value->detail.dump();
-        if (auto f = store_determination(d))
-          return f;
-        values.push_back(value->value);
-        endpoint_volumes.push_back(got.endpoint_ml);
-        endpoint_uncertainties.push_back(got.endpoint_uncertainty_ml);
+        // One determination per result: a method titrating in stages stores
+        // each of its results with the run of the stage it comes from.
+        for (std::size_t k = 0; k < rules.size(); ++k) {
+          store::DeterminationRecord dk = d;
+          if (rules.size() > 1) {
+            const auto stage = static_cast<std::size_t>(value[k].stage - 1);
+            dk.run_id = got.run_id(stage);
+            dk.second_run_id = got.run_id(stage > 0 ? stage - 1 : 1);
+          }
+          dk.value = value[k].value;
+          dk.unit = unit_of(entry, rules[k]);
+          dk.detail_json = value[k].detail.dump();
+          if (auto f = store_determination(dk))
+            return f;
+          collected[k].values.push_back(value[k].value);
+          collected[k].endpoint_volumes.push_back(value[k].volume_ml);
+          collected[k].endpoint_uncertainties.push_back(value[k].uncertainty_ml);
+          collected[k].titrant = value[k].titrant;
+        }
         break;
       }
-      // Duplicates that disagree get one extra replicate.
-      if (slot + 1 == planned && !extra_asked && entry.kind == EntryKind::sample &&
-          values.size() >= 2 && m.result.largest_replicate_difference) {
-        const auto [lo, hi] = std::minmax_element(values.begin(), values.end());
-        const double mean =
-            std::accumulate(values.begin(), values.end(), 0.0) / static_cast<double>(values.size());
-        const double spread =
-            m.result.replicate_difference_relative ? (*hi - *lo) / mean * 100.0 : (*hi - *lo);
-        if (spread > *m.result.largest_replicate_difference) {
-          extra_asked = true;
-          ++planned;
-          notes_.push_back("replicates differ by " + fixed(spread, 3) +
-                           (m.result.replicate_difference_relative ? " %" : " " + m.result.unit) +
-                           ", above the method's " +
-                           fixed(*m.result.largest_replicate_difference, 3) +
-                           ": one extra replicate");
+      // Duplicates that disagree get one extra replicate (once, whichever
+      // result disagrees).
+      if (slot + 1 == planned && !extra_asked && entry.kind == EntryKind::sample) {
+        for (std::size_t k = 0; k < rules.size() && !extra_asked; ++k) {
+          const auto& rule = rules[k];
+          const auto& values = collected[k].values;
+          if (values.size() < 2 || !rule.largest_replicate_difference)
+            continue;
+          const auto [lo, hi] = std::minmax_element(values.begin(), values.end());
+          const double mean = std::accumulate(values.begin(), values.end(), 0.0) /
+                              static_cast<double>(values.size());
+          const double spread =
+              rule.replicate_difference_relative ? (*hi - *lo) / mean * 100.0 : (*hi - *lo);
+          if (spread > *rule.largest_replicate_difference) {
+            extra_asked = true;
+            ++planned;
+            notes_.push_back(
+                result_prefix(rules, rule) + "replicates differ by " + fixed(spread, 3) +
+                (rule.replicate_difference_relative ? " %" : " " + rule.unit) +
+                ", above the method's " + fixed(*rule.largest_replicate_difference, 3) +
+                ": one extra replicate");
+          }
         }
       }
     }
-    entry_->values = values;
-    entry_->unit = unit_of(entry, m);
-    return conclude(entry, m, values, endpoint_volumes, endpoint_uncertainties, ready);
+    // Flags raised so far (a replicate without a value, no spare left) hold
+    // for every result of the entry.
+    const std::vector<std::string> common_flags = flags_;
+    std::optional<Failure> stop;
+    for (std::size_t k = 0; k < rules.size(); ++k) {
+      flags_ = common_flags;
+      const std::string unit = unit_of(entry, rules[k]);
+      EntryOutcome::Named named;
+      named.name = result_name(entry, rules, rules[k]);
+      named.values = collected[k].values;
+      named.unit = unit;
+      if (k == 0) {
+        entry_->values = collected[k].values;
+        entry_->unit = unit;
+      }
+      auto f = conclude(entry, m, rules, rules[k], collected[k], ready, named);
+      if (entry.kind != EntryKind::conditioning)
+        entry_->results.push_back(named);
+      if (f && !stop)
+        stop = f;
+    }
+    return stop;
+  }
+
+  /// "zinc: " before what is said of one result of several; nothing for a
+  /// method's only result.
+  static std::string result_prefix(const std::vector<method::ResultRule>& rules,
+                                   const method::ResultRule& rule) {
+    return rules.size() > 1 ? rule.analyte + ": " : "";
+  }
+
+  /// The name of an entry's result as stored (entry_results.name).
+  static std::string result_name(const Entry& entry, const std::vector<method::ResultRule>& rules,
+                                 const method::ResultRule& rule) {
+    switch (entry.kind) {
+      case EntryKind::blank:
+        return rules.size() > 1 ? "blank volume: " + rule.analyte : "blank volume";
+      case EntryKind::titer:
+        return "titer concentration";
+      case EntryKind::check_standard:
+        return "check standard";
+      default:
+        return rule.analyte;
+    }
   }
 
   /// The entry's result from its counted values: statistics, limits, and
   /// what the later entries use (blank, titer); a failure that stops the
   /// series (refused titer, failed check standard).
   std::optional<Failure> conclude(const Entry& entry, const method::Method& m,
-                                  const std::vector<double>& values,
-                                  const std::vector<double>& endpoint_volumes,
-                                  const std::vector<double>& endpoint_uncertainties,
-                                  const std::optional<method::Readiness>& ready) {
+                                  const std::vector<method::ResultRule>& rules,
+                                  const method::ResultRule& rule, const ResultValues& got,
+                                  const std::optional<method::Readiness>& ready,
+                                  EntryOutcome::Named& named) {
+    const std::vector<double>& values = got.values;
     if (entry.kind == EntryKind::conditioning)
       return std::nullopt;
+    const std::string prefix = result_prefix(rules, rule);
     if (values.empty()) {
       entry_->status = "failed";
       if (entry.kind == EntryKind::titer || entry.kind == EntryKind::check_standard ||
@@ -390,14 +496,23 @@ class SeriesRun {
     }
     const double mean =
         std::accumulate(values.begin(), values.end(), 0.0) / static_cast<double>(values.size());
-    entry_->mean = mean;
+    named.mean = mean;
+    if (&rule == &rules.front())
+      entry_->mean = mean;
     store::EntryResultRecord r;
     r.entry_id = entry_->entry_id;
+    r.name = result_name(entry, rules, rule);
     r.value = mean;
-    r.unit = unit_of(entry, m);
+    r.unit = unit_of(entry, rule);
     r.count = static_cast<int>(values.size());
     json detail;
     detail["values"] = values;
+    if (!m.more_results.empty()) {
+      detail["stage"] = rule.stage;
+      detail["counted_from"] = method::counted_from_name(rule.counted_from);
+      if (!rule.less.empty())
+        detail["less"] = rule.less;
+    }
     if (auto stats = controller::replicate_statistics(values); stats) {
       r.sd = stats->sd;
       r.rsd_percent = stats->rsd_percent;
@@ -408,18 +523,16 @@ class SeriesRun {
                                   {"critical_1_percent", stats->outlier->critical_1_percent},
                                   {"verdict", stats->outlier->verdict}};
         if (stats->outlier->verdict != "none")
-          flag("replicate " + std::to_string(stats->outlier->suspect_index + 1) + " is a " +
-               stats->outlier->verdict + " by the " + stats->outlier->name);
+          flag(prefix + "replicate " + std::to_string(stats->outlier->suspect_index + 1) +
+               " is a " + stats->outlier->verdict + " by the " + stats->outlier->name);
       }
     }
     std::optional<Failure> stop;
     switch (entry.kind) {
       case EntryKind::blank:
-        r.name = "blank volume";
-        blank_ml_[m.name] = mean;
+        blank_ml_[blank_key(m, rule.analyte)] = mean;
         break;
       case EntryKind::titer: {
-        r.name = "titer concentration";
         auto stored =
             method::record_titer(stores_.methods, entry.titrant, values, now(), options_.titer);
         if (!stored) {
@@ -438,7 +551,6 @@ class SeriesRun {
         break;
       }
       case EntryKind::check_standard: {
-        r.name = "check standard";
         const double deviation = (mean - entry.expected_value) / entry.expected_value * 100.0;
         detail["expected"] = entry.expected_value;
         detail["deviation_percent"] = deviation;
@@ -455,25 +567,22 @@ class SeriesRun {
         break;
       }
       default: {
-        r.name = m.result.analyte;
-        if (m.result.lowest && mean < *m.result.lowest)
-          flag("below the method's lowest " + fixed(*m.result.lowest, 4) + " " + r.unit);
-        if (m.result.highest && mean > *m.result.highest)
-          flag("above the method's highest " + fixed(*m.result.highest, 4) + " " + r.unit);
-        if (values.size() >= 2 && m.result.largest_replicate_difference) {
+        if (rule.lowest && mean < *rule.lowest)
+          flag(prefix + "below the method's lowest " + fixed(*rule.lowest, 4) + " " + r.unit);
+        if (rule.highest && mean > *rule.highest)
+          flag(prefix + "above the method's highest " + fixed(*rule.highest, 4) + " " + r.unit);
+        if (values.size() >= 2 && rule.largest_replicate_difference) {
           const auto [lo, hi] = std::minmax_element(values.begin(), values.end());
           const double spread =
-              m.result.replicate_difference_relative ? (*hi - *lo) / mean * 100.0 : (*hi - *lo);
-          if (spread > *m.result.largest_replicate_difference)
-            flag("replicates still differ by " + fixed(spread, 3) +
-                 (m.result.replicate_difference_relative ? " %" : " " + r.unit));
+              rule.replicate_difference_relative ? (*hi - *lo) / mean * 100.0 : (*hi - *lo);
+          if (spread > *rule.largest_replicate_difference)
+            flag(prefix + "replicates still differ by " + fixed(spread, 3) +
+                 (rule.replicate_difference_relative ? " %" : " " + r.unit));
         }
         if (values.size() < static_cast<std::size_t>(std::max(1, replicates_)))
-          flag(std::to_string(values.size()) + " of " + std::to_string(replicates_) +
+          flag(prefix + std::to_string(values.size()) + " of " + std::to_string(replicates_) +
                " replicates gave a value");
-        if (auto budget =
-                uncertainty(entry, mean, values, endpoint_volumes, endpoint_uncertainties, ready);
-            budget) {
+        if (auto budget = uncertainty(entry, mean, got, ready); budget) {
           json rows = json::array();
           for (const auto& c : budget->components)
             rows.push_back({{"name", c.name},
@@ -491,6 +600,7 @@ class SeriesRun {
       }
     }
     r.flags = flags_text();
+    named.flags = r.flags;
     r.detail_json = detail.dump();
     if (auto stored = stores_.series.add_entry_result(r); !stored && !stop)
       stop = Failure{Reach::series, stored.error().describe()};
@@ -499,11 +609,12 @@ class SeriesRun {
 
   /// GUM budget of a sample's mean: burette volume, endpoint, titer,
   /// repeatability, sample size (relative uncertainties in quadrature).
-  Result<controller::UncertaintyBudget> uncertainty(
-      const Entry& entry, double mean, const std::vector<double>& values,
-      const std::vector<double>& endpoint_volumes,
-      const std::vector<double>& endpoint_uncertainties,
-      const std::optional<method::Readiness>& ready) {
+  Result<controller::UncertaintyBudget> uncertainty(const Entry& entry, double mean,
+                                                    const ResultValues& got,
+                                                    const std::optional<method::Readiness>& ready) {
+    const std::vector<double>& values = got.values;
+    const std::vector<double>& endpoint_volumes = got.endpoint_volumes;
+    const std::vector<double>& endpoint_uncertainties = got.endpoint_uncertainties;
     std::vector<controller::UncertaintyComponent> c;
     // The typical titrant volume of this entry: the mean of its endpoints.
     const double volume =
@@ -520,8 +631,13 @@ class SeriesRun {
     if (u_ep > 0.0)
       c.push_back(
           {"endpoint (detection)", volume, u_ep, "standard uncertainty from the endpoint method"});
-    if (ready && !ready->titers.empty()) {
-      const auto& t = ready->titers.front();
+    const method::Readiness::Titer* titer = nullptr;
+    if (ready)
+      for (const auto& t : ready->titers)
+        if (!titer || t.titrant == got.titrant)
+          titer = &t;
+    if (titer) {
+      const auto& t = *titer;
       auto history = stores_.methods.titer_history(t.titrant);
       double rsd = 0.0;
       int n = 1;
@@ -632,11 +748,9 @@ class SeriesRun {
         got.excess_ml = s->volume_ml;
         got.excess_titrant = s->titrant;
       } else if (const auto* s = std::get_if<method::TitrateStep>(&step)) {
-        f = titrate(entry, m, *s, i, portion, got, ready, last_run);
-        got.back_titration = false;
+        f = titrate(entry, m, *s, false, i, portion, got, ready, last_run);
       } else if (const auto* s = std::get_if<method::BackTitrateStep>(&step)) {
-        f = titrate(entry, m, *s, i, portion, got, ready, last_run);
-        got.back_titration = true;
+        f = titrate(entry, m, *s, true, i, portion, got, ready, last_run);
       } else if (const auto* s = std::get_if<method::EvaluateStep>(&step)) {
         // The titration before it evaluated with this step's method; here
         // the endpoint is held against the expected range.
@@ -776,9 +890,21 @@ class SeriesRun {
     return std::nullopt;
   }
 
+  /// The rule of the result a stage (1-based) gives, for the run's record;
+  /// the first result if none names it.
+  static const method::ResultRule& rule_of_stage(const method::Method& m, int stage) {
+    const int stages = static_cast<int>(method::titration_stages(m.steps).size());
+    if ((m.result.stage == 0 ? stages : m.result.stage) == stage)
+      return m.result;
+    for (const auto& r : m.more_results)
+      if ((r.stage == 0 ? stages : r.stage) == stage)
+        return r;
+    return m.result;
+  }
+
   std::optional<Failure> titrate(const Entry& entry, const method::Method& m,
-                                 const method::TitrateStep& s, std::size_t step_index,
-                                 const Portion& portion, Measured& got,
+                                 const method::TitrateStep& s, bool back_titration,
+                                 std::size_t step_index, const Portion& portion, Measured& got,
                                  const std::optional<method::Readiness>& ready,
                                  std::optional<controller::RunOutcome>& last_run) {
     auto* burette = burette_for(m, s.titrant);
@@ -814,10 +940,11 @@ class SeriesRun {
     sample.series = series_.name;
     sample.sample_volume_ml =
         portion.aliquot_ml > 0.0 ? portion.aliquot_ml : options_.dissolved_in_ml;
-    sample.metal = m.result.analyte;
+    const method::ResultRule& rule = rule_of_stage(m, static_cast<int>(got.stages.size()) + 1);
+    sample.metal = rule.analyte;
     sample.metal_molar_mass_g_per_mol =
-        m.result.molar_mass_g_per_mol > 0.0 ? m.result.molar_mass_g_per_mol : 1.0;
-    sample.metal_per_titrant = m.result.analyte_per_titrant;
+        rule.molar_mass_g_per_mol > 0.0 ? rule.molar_mass_g_per_mol : 1.0;
+    sample.metal_per_titrant = rule.analyte_per_titrant;
     sample.titrant_name = s.titrant;
     sample.titrant_conc_mol_per_l = nominal_conc(s.titrant);
     if (ready)
@@ -828,23 +955,37 @@ class SeriesRun {
     controller::RunControl control;
     auto outcome =
         controller::run_titration(instruments, stores_.runs, sample, tm, observer_, &control);
+    StageMeasured stage;
+    stage.run_id = outcome.run_id;
+    stage.titrated_with = s.titrant;
+    stage.back_titration = back_titration;
+    if (back_titration) {
+      stage.excess_ml = got.excess_ml;
+      stage.excess_titrant = got.excess_titrant;
+      got.excess_ml = 0.0;
+      got.excess_titrant.clear();
+    }
     if (outcome.run_id > 0) {
       entry_->run_ids.push_back(outcome.run_id);
       (void)stores_.methods.record_method_use(outcome.run_id, m.name, m.version);
-      if (got.run_id == 0)
-        got.run_id = outcome.run_id;
-      else
-        got.second_run_id = outcome.run_id;
     }
     if (!outcome.burette_stopped)
       outcome_.burettes_stopped = false;
     last_run = outcome;
-    got.titrated_with = s.titrant;
     if (outcome.status == store::RunStatus::completed && outcome.endpoint) {
-      got.endpoint_ml = outcome.endpoint->volume_ml;
-      got.endpoint_uncertainty_ml = outcome.endpoint->uncertainty_ml;
+      stage.endpoint_ml = outcome.endpoint->volume_ml;
+      stage.endpoint_uncertainty_ml = outcome.endpoint->uncertainty_ml;
+      // All the stage dosed: its last point, as the store keeps it. What
+      // went past the endpoint stays in the vessel for a later stage.
+      auto points = stores_.runs.load_points(outcome.run_id);
+      if (!points)
+        return Failure{Reach::series, "cannot read run " + std::to_string(outcome.run_id) +
+                                          " back: " + points.error().describe()};
+      stage.dosed_ml = points->empty() ? 0.0 : points->back().volume_ml;
+      got.stages.push_back(stage);
       return std::nullopt;
     }
+    got.stages.push_back(stage);
     // No endpoint is this vessel's problem; anything else (a device, an
     // empty reservoir, the store) is the series'.
     if (outcome.reason.rfind("no endpoint found", 0) == 0)
@@ -895,7 +1036,9 @@ class SeriesRun {
       t["burettes"].push_back(b);
     }
     t["sensor"] = inst_.sensor.describe();
-    t["runs"] = {got.run_id, got.second_run_id};
+    t["runs"] = {got.run_id(0), got.run_id(1)};
+    for (std::size_t k = 2; k < got.stages.size(); ++k)
+      t["runs"].push_back(got.run_id(k));
     t["software_version"] = kVersion;
     return t;
   }
@@ -917,7 +1060,7 @@ class SeriesRun {
     return 1.0;
   }
 
-  std::string unit_of(const Entry& entry, const method::Method& m) const {
+  std::string unit_of(const Entry& entry, const method::ResultRule& rule) const {
     switch (entry.kind) {
       case EntryKind::blank:
       case EntryKind::conditioning:
@@ -925,43 +1068,137 @@ class SeriesRun {
       case EntryKind::titer:
         return "mol/L";
       default:
-        return m.result.unit;
+        return rule.unit;
     }
   }
 
-  /// The value of one determination: a blank volume, a titer concentration,
-  /// or the sample's content in the method's unit.
-  Result<Value> compute_value(const Entry& entry, const method::Method& m, const Measured& got,
-                              const Portion& portion,
+  /// The titrant a result rule counts in one determination: the stage's
+  /// endpoint, or titrant counted over stages (titrant_between), less an
+  /// earlier result's (without its blank: see compute_values). For a
+  /// back-titration stage: the excess less what was titrated back, as a
+  /// volume of the first titrant.
+  Result<RuleVolume> rule_volume(const method::Method& m, const method::ResultRule& rule,
+                                 const Measured& got,
+                                 const std::optional<method::Readiness>& ready) {
+    const int count = static_cast<int>(got.stages.size());
+    const int stage = rule.stage == 0 ? count : rule.stage;
+    if (stage < 1 || stage > count)
+      return make_error(ErrorKind::invalid_input,
+                        "result '" + rule.analyte + "' needs stage " + std::to_string(stage) +
+                            " but the vessel was titrated in " + std::to_string(count));
+    const StageMeasured& st = got.stages[static_cast<std::size_t>(stage - 1)];
+    RuleVolume out;
+    out.stage = stage;
+    out.detail = {{"stage", stage},
+                  {"endpoint_ml", st.endpoint_ml},
+                  {"endpoint_uncertainty_ml", st.endpoint_uncertainty_ml},
+                  {"titrant", st.titrated_with}};
+    if (st.back_titration) {
+      out.detail["excess_ml"] = st.excess_ml;
+      out.detail["excess_titrant"] = st.excess_titrant;
+      const double c1 = nominal_conc(st.excess_titrant);
+      const double c2 = nominal_conc(st.titrated_with);
+      if (c1 <= 0.0 || c2 <= 0.0)
+        return make_error(
+            ErrorKind::invalid_input,
+            "titrant '" + (c1 <= 0.0 ? st.excess_titrant : st.titrated_with) + "' is not stored");
+      const double t2 = titer_factor(st.titrated_with, ready);
+      out.titrant = st.excess_titrant;
+      out.volume_ml =
+          st.excess_ml - st.endpoint_ml * c2 * t2 / (c1 * titer_factor(st.excess_titrant, ready));
+      out.uncertainty_ml = st.endpoint_uncertainty_ml;
+      out.detail["back_titrant_titer"] = t2;
+      return out;
+    }
+    out.titrant = st.titrated_with;
+    std::vector<controller::StageReading> readings;
+    for (const auto& g : got.stages)
+      readings.push_back({g.endpoint_ml, g.dosed_ml, g.endpoint_uncertainty_ml});
+    std::size_t from = static_cast<std::size_t>(stage);
+    bool from_endpoint = false;
+    if (rule.counted_from == method::CountedFrom::previous_endpoint) {
+      from = static_cast<std::size_t>(stage - 1);
+      from_endpoint = true;
+    } else if (rule.counted_from == method::CountedFrom::first_stage_start) {
+      from = 1;
+    }
+    auto counted =
+        controller::titrant_between(readings, from, from_endpoint, static_cast<std::size_t>(stage));
+    if (!counted)
+      return counted.error();
+    out.volume_ml = counted->volume_ml;
+    out.uncertainty_ml = counted->uncertainty_ml;
+    if (!m.more_results.empty() || rule.counted_from != method::CountedFrom::stage_start) {
+      out.detail["counted_from"] = method::counted_from_name(rule.counted_from);
+      out.detail["counted_ml"] = counted->volume_ml;
+      json stages = json::array();
+      for (const auto& g : got.stages)
+        stages.push_back(
+            {{"run_id", g.run_id}, {"endpoint_ml", g.endpoint_ml}, {"dosed_ml", g.dosed_ml}});
+      out.detail["stages"] = stages;
+    }
+    return out;
+  }
+
+  /// The values of one determination, one per rule: blank volumes, a titer
+  /// concentration, or the sample's content of each analyte. Each result
+  /// subtracts its own blank (the blank vessel's titrant counted by the same
+  /// rule); a result `less` an earlier one is the difference of the two
+  /// amounts (controller::amounts_from_total_and_first).
+  Result<std::vector<Value>> compute_values(const Entry& entry, const method::Method& m,
+                                            const std::vector<method::ResultRule>& rules,
+                                            const Measured& got, const Portion& portion,
+                                            const std::optional<method::Readiness>& ready) {
+    std::vector<Value> out;
+    std::map<std::string, RuleVolume> counted;  // by analyte, before any difference
+    for (const auto& rule : rules) {
+      auto rv = rule_volume(m, rule, got, ready);
+      if (!rv)
+        return rv.error();
+      counted[rule.analyte] = *rv;
+      auto v =
+          compute_value(entry, m, rule, *rv, rule.less.empty() ? nullptr : &counted.at(rule.less),
+                        got, portion, ready);
+      if (!v)
+        return v.error();
+      if (rules.size() > 1)
+        v->detail["result"] = rule.analyte;
+      out.push_back(std::move(*v));
+    }
+    return out;
+  }
+
+  /// The value of one rule; `less`: the counted titrant of the result it
+  /// subtracts, if any.
+  Result<Value> compute_value(const Entry& entry, const method::Method& m,
+                              const method::ResultRule& rule, const RuleVolume& rv,
+                              const RuleVolume* less, const Measured& got, const Portion& portion,
                               const std::optional<method::Readiness>& ready) {
     Value v;
-    const double blank = blank_ml_.count(m.name) ? blank_ml_.at(m.name) : 0.0;
-    v.detail = {{"endpoint_ml", got.endpoint_ml},
-                {"endpoint_uncertainty_ml", got.endpoint_uncertainty_ml},
-                {"titrant", got.titrated_with},
-                {"position", got.position}};
+    v.stage = rv.stage;
+    v.titrant = rv.titrant;
+    const double blank = blank_ml_.count(blank_key(m, rule.analyte))
+                             ? blank_ml_.at(blank_key(m, rule.analyte))
+                             : 0.0;
+    v.detail = rv.detail;
+    v.detail["position"] = got.position;
     v.detail["traceability"] = traceability(m, got, ready);
-    if (got.back_titration) {
-      v.detail["excess_ml"] = got.excess_ml;
-      v.detail["excess_titrant"] = got.excess_titrant;
-    }
-    // Volume-equivalent of the first titrant that reacted with the vessel's
-    // analyte (direct: the endpoint; back: the excess less what was titrated back).
-    const std::string first = got.back_titration ? got.excess_titrant : got.titrated_with;
-    const double c1 = nominal_conc(first);
+    const double c1 = nominal_conc(rv.titrant);
     if (c1 <= 0.0)
-      return make_error(ErrorKind::invalid_input, "titrant '" + first + "' is not stored");
-    const double t1 = titer_factor(first, ready);
-    double reacted_ml = got.endpoint_ml;
-    if (got.back_titration) {
-      const double c2 = nominal_conc(got.titrated_with);
-      if (c2 <= 0.0)
-        return make_error(ErrorKind::invalid_input,
-                          "titrant '" + got.titrated_with + "' is not stored");
-      const double t2 = titer_factor(got.titrated_with, ready);
-      reacted_ml = got.excess_ml - got.endpoint_ml * c2 * t2 / (c1 * t1);
-      v.detail["back_titrant_titer"] = t2;
+      return make_error(ErrorKind::invalid_input, "titrant '" + rv.titrant + "' is not stored");
+    const double t1 = titer_factor(rv.titrant, ready);
+    double reacted_ml = rv.volume_ml;
+    v.uncertainty_ml = rv.uncertainty_ml;
+    if (less) {
+      reacted_ml -= less->volume_ml;
+      v.uncertainty_ml = std::hypot(rv.uncertainty_ml, less->uncertainty_ml);
+      v.detail["less"] = {{"result", rule.less}, {"volume_ml", less->volume_ml}};
     }
+    // The budget's titrant volume: a one-stage result keeps its endpoint as
+    // read (as before stages existed), a counted one its counted volume.
+    const bool counted = less || rule.counted_from != method::CountedFrom::stage_start;
+    v.volume_ml =
+        counted ? reacted_ml : got.stages[static_cast<std::size_t>(rv.stage - 1)].endpoint_ml;
     switch (entry.kind) {
       case EntryKind::blank:
       case EntryKind::conditioning:
@@ -988,35 +1225,53 @@ class SeriesRun {
       default:
         break;
     }
-    controller::TitrantVolume tv;
-    tv.nominal_conc_mol_per_l = c1;
-    tv.titer = t1;
-    tv.volume_ml = reacted_ml;
-    tv.blank_ml = blank;
-    tv.analyte_per_titrant = m.result.analyte_per_titrant;
-    auto amount = controller::analyte_amount_mol(tv);
-    if (!amount)
-      return amount.error();
-    if (*amount <= 0.0)
+    double amount_mol = 0.0;
+    if (less) {
+      // The difference: this rule's titrant (with the blank of both) less
+      // the earlier result's (with its own blank), both at this analyte's
+      // stoichiometry.
+      const double less_blank =
+          blank_ml_.count(blank_key(m, rule.less)) ? blank_ml_.at(blank_key(m, rule.less)) : 0.0;
+      controller::TitrantVolume total{c1, t1, rv.volume_ml, blank + less_blank,
+                                      rule.analyte_per_titrant};
+      controller::TitrantVolume first{c1, t1, less->volume_ml, less_blank,
+                                      rule.analyte_per_titrant};
+      auto both = controller::amounts_from_total_and_first(total, first);
+      if (!both)
+        return both.error();
+      amount_mol = both->second_mol;
+    } else {
+      controller::TitrantVolume tv;
+      tv.nominal_conc_mol_per_l = c1;
+      tv.titer = t1;
+      tv.volume_ml = reacted_ml;
+      tv.blank_ml = blank;
+      tv.analyte_per_titrant = rule.analyte_per_titrant;
+      auto amount = controller::analyte_amount_mol(tv);
+      if (!amount)
+        return amount.error();
+      amount_mol = *amount;
+    }
+    if (amount_mol <= 0.0)
       return make_error(ErrorKind::invalid_input,
-                        "no analyte above the blank (" + fixed(reacted_ml, 4) +
+                        "no " + rule.analyte + " above the blank (" + fixed(reacted_ml, 4) +
                             " mL against a blank of " + fixed(blank, 4) + " mL)");
     controller::SampleSize size;
     size.aliquot_ml = portion.aliquot_ml;
     size.mass_g = portion.mass_g;
     size.dilution_factor = entry.dilution_factor;
     size.density_g_per_ml = entry.density_g_per_ml;
-    auto unit = controller::result_unit_from_name(m.result.unit);
+    auto unit = controller::result_unit_from_name(rule.unit);
     if (!unit)
-      return make_error(ErrorKind::invalid_input, "unknown result unit '" + m.result.unit + "'");
-    auto conc = controller::concentration(*amount, size, *unit, m.result.molar_mass_g_per_mol);
+      return make_error(ErrorKind::invalid_input, "unknown result unit '" + rule.unit + "'");
+    auto conc = controller::concentration(amount_mol, size, *unit, rule.molar_mass_g_per_mol);
     if (!conc)
       return conc.error();
     v.value = *conc;
     v.detail["reacted_ml"] = reacted_ml;
     v.detail["blank_ml"] = blank;
     v.detail["titer"] = t1;
-    v.detail["amount_mol"] = *amount;
+    v.detail["amount_mol"] = amount_mol;
     v.detail["aliquot_ml"] = portion.aliquot_ml;
     v.detail["mass_g"] = portion.mass_g;
     v.detail["dilution_factor"] = entry.dilution_factor;

@@ -115,15 +115,27 @@ class SeriesObserver : public controller::RunObserver {
 };
 
 struct EntryOutcome {
+  /// One named result of the entry, as its entry_results row names it.
+  struct Named {
+    std::string name;  ///< the analyte, "blank volume", "titer concentration"...
+    std::vector<double> values;
+    std::optional<double> mean;
+    std::string unit;
+    std::string flags;  ///< "; "-separated, as stored
+  };
   std::int64_t entry_id = 0;
   EntryKind kind = EntryKind::sample;
   std::string label;
   std::string status;  ///< "done", "flagged", "failed", "skipped"
   std::string note;
-  /// Counted values and their mean (unit as stored), if the entry has a value.
+  /// Counted values and their mean (unit as stored), if the entry has a
+  /// value: of the method's first result when it has several.
   std::vector<double> values;
   std::optional<double> mean;
   std::string unit;
+  /// Every result of a titrating entry (one per result rule of a sample's or
+  /// blank's method; one for a titer or check standard), in the method's order.
+  std::vector<Named> results;
   std::vector<std::int64_t> run_ids;
 };
 

@@ -66,8 +66,24 @@ TEST(MethodFile, ReadsTheBackTitrationExample) {
   EXPECT_EQ(rinse, RinseStep{});
 }
 
+TEST(MethodFile, ReadsTheTwoStageExample) {
+  auto m = read_method_file(example("iron-zinc-two-stage.method"));
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  EXPECT_EQ(titration_stages(m->steps), (std::vector<std::size_t>{2, 6}));
+  ASSERT_EQ(m->more_results.size(), 1u);
+  EXPECT_EQ(m->result.analyte, "iron");
+  EXPECT_EQ(m->result.stage, 1);
+  EXPECT_EQ(m->result.counted_from, CountedFrom::stage_start);
+  EXPECT_EQ(m->more_results[0].analyte, "zinc");
+  EXPECT_EQ(m->more_results[0].stage, 2);
+  EXPECT_EQ(m->more_results[0].counted_from, CountedFrom::previous_endpoint);
+  EXPECT_TRUE(m->more_results[0].less.empty());
+  EXPECT_DOUBLE_EQ(std::get<AdjustPhStep>(m->steps[4]).target_ph, 5.5);
+}
+
 TEST(MethodFile, WriteThenParseGivesTheSameMethod) {
-  for (const char* name : {"tap-water-hardness.method", "nickel-back-titration.method"}) {
+  for (const char* name : {"tap-water-hardness.method", "nickel-back-titration.method",
+                           "iron-zinc-two-stage.method"}) {
     auto m = read_method_file(example(name));
     ASSERT_TRUE(m.has_value()) << m.error().message;
     const std::string text = write_method(*m);
@@ -172,6 +188,118 @@ TEST(MethodFile, TheBaseFileIsValid) {
   auto m = parse_method(with({}), "base");
   ASSERT_TRUE(m.has_value()) << m.error().message;
   EXPECT_EQ(m->steps.size(), 3u);
+}
+
+TEST(MethodFile, AMethodWithOneResultIsWrittenAsBeforeStages) {
+  // The [result] section of a one-result method carries no stage keys, so
+  // that files written before two-stage methods existed read and write
+  // unchanged.
+  auto m = parse_method(with({}), "base");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  const std::string text = write_method(*m);
+  EXPECT_NE(text.find("[result]\nanalyte = calcium\nmolar mass = 40.078 g/mol\nanalyte per "
+                      "titrant = 1\nunit = mmol/L\n\n[step]"),
+            std::string::npos)
+      << text;
+  EXPECT_EQ(text.find("stage"), std::string::npos) << text;
+  EXPECT_EQ(text.find("counted from"), std::string::npos) << text;
+}
+
+/// kBase with a second stage (pH raised, titrated again) and `results` in
+/// place of its one [result] section (lines 13 to 16).
+std::string two_stages(const std::string& results) {
+  std::string out;
+  for (std::size_t i = 0; i < kBase.size(); ++i) {
+    if (i == 12)
+      out += results;
+    if (i >= 12 && i <= 15)
+      continue;
+    out += kBase[i] + "\n";
+  }
+  return out +
+         "[step]\nkind = adjust ph\ntarget = 10\ntolerance = 0.2\nbase = buffer\nlargest total "
+         "volume = 2 mL\n[step]\nkind = titrate\ntitrant = EDTA\ndosing = fixed "
+         "increments\nlargest volume = 20 mL\n[step]\nkind = evaluate\nendpoint method = "
+         "derivative\nexpected endpoint = 1 to 15 mL\n";
+}
+
+const std::string kCalciumResult =
+    "[result]\nanalyte = calcium\nmolar mass = 40.078 g/mol\nunit = mmol/L\nstage = 1\n";
+
+TEST(MethodFile, TwoStageResultsRoundTrip) {
+  // Calcium from stage 1, calcium and magnesium together from the start of
+  // stage 1 to stage 2's endpoint, magnesium as their difference.
+  const std::string text =
+      two_stages(kCalciumResult +
+                 "[result]\nanalyte = calcium and magnesium\nmolar mass = 100.086 g/mol\nunit "
+                 "= mmol/L\nstage = 2\ncounted from = first stage start\n"
+                 "[result]\nanalyte = magnesium\nmolar mass = 24.305 g/mol\nunit = mg/L\n"
+                 "stage = 2\ncounted from = first stage start\nless = calcium\n");
+  auto m = parse_method(text, "three results");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  ASSERT_EQ(result_rules(*m).size(), 3u);
+  EXPECT_EQ(m->more_results[1].less, "calcium");
+  EXPECT_EQ(m->more_results[1].counted_from, CountedFrom::first_stage_start);
+  const std::string written = write_method(*m);
+  auto again = parse_method(written, "again");
+  ASSERT_TRUE(again.has_value()) << again.error().message << "\n" << written;
+  EXPECT_EQ(*again, *m);
+  EXPECT_EQ(write_method(*again), written);
+  EXPECT_TRUE(validate_method(*m).has_value());
+}
+
+TEST(MethodFile, TwoStageResultErrorsNameTheirLineAndField) {
+  struct Case {
+    const char* what;
+    std::string results;
+    int line;  // within the results text, counted from its first line
+    const char* field;
+    const char* says;
+  };
+  const std::string zinc = "[result]\nanalyte = zinc\nmolar mass = 65.38 g/mol\nunit = mg/L\n";
+  const std::vector<Case> cases = {
+      {"a stage that does not exist", kCalciumResult + zinc + "stage = 3\n", 10, "stage",
+       "stage 3 does not exist: the method titrates in 2 stages"},
+      {"previous endpoint of the first stage",
+       kCalciumResult + zinc + "stage = 1\ncounted from = previous endpoint\n", 11, "counted from",
+       "needs a stage before this result's stage 1"},
+      {"an unknown way of counting", kCalciumResult + zinc + "counted from = halfway\n", 10,
+       "counted from", "unknown value 'halfway'"},
+      {"less names no earlier result", zinc + "less = calcium\n" + kCalciumResult, 5, "less",
+       "'calcium' is not the analyte of a result given before this one"},
+      {"the same analyte twice", kCalciumResult + kCalciumResult, 7, "analyte",
+       "result 'calcium' is already given at line"},
+      {"a stage number below 1", kCalciumResult + zinc + "stage = 0\n", 10, "stage",
+       "out of range"},
+  };
+  for (const auto& c : cases) {
+    const std::string text = two_stages(c.results);
+    auto m = parse_method(text, "bad.method");
+    ASSERT_FALSE(m.has_value()) << c.what;
+    const std::string where =
+        "bad.method: line " + std::to_string(12 + c.line) + ", field '" + c.field + "'";
+    EXPECT_NE(m.error().message.find(where), std::string::npos)
+        << c.what << ": " << m.error().message;
+    EXPECT_NE(m.error().message.find(c.says), std::string::npos)
+        << c.what << ": " << m.error().message;
+  }
+}
+
+TEST(MethodFile, CountingOverStagesNeedsOneTitrant) {
+  // A second titrant for stage 2: titrant cannot be counted across.
+  std::string text = two_stages(kCalciumResult +
+                                "[result]\nanalyte = zinc\nmolar mass = 65.38 g/mol\nunit = "
+                                "mg/L\nstage = 2\ncounted from = previous endpoint\n");
+  text.replace(text.find("[reagent]"), 0, "[titrant]\nname = zinc standard\nburette = b2\n");
+  const auto second = text.rfind("titrant = EDTA");
+  text.replace(second, 14, "titrant = zinc standard");
+  auto m = parse_method(text, "two titrants");
+  ASSERT_FALSE(m.has_value());
+  EXPECT_NE(m.error().message.find("field 'counted from': 'previous endpoint' needs stages 1 to "
+                                   "2 to be titrate steps with one titrant (stage 1 titrates "
+                                   "with 'EDTA', stage 2 with 'zinc standard')"),
+            std::string::npos)
+      << m.error().message;
 }
 
 struct BadCase {

@@ -7,13 +7,16 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
+#include <fstream>
 #include <functional>
+#include <sstream>
 
 #include <nlohmann/json.hpp>
 
 #include "common/version.hpp"
 #include "controller/cli/demo_data.hpp"
 #include "controller/lab_checks.hpp"
+#include "controller/results.hpp"
 #include "controller/series/weighing.hpp"
 #include "tests/controller/series_bench.hpp"
 
@@ -624,6 +627,211 @@ TEST(Series, AHeadLeftDownIsRaisedBeforeTheFirstVessel) {
   ASSERT_TRUE(b.changer->lower().has_value());
   auto outcome = b.run(series_with(kTwoSamples));
   EXPECT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+}
+
+}  // namespace
+}  // namespace veq::series
+
+// ---- two stages in one vessel --------------------------------------------
+
+namespace veq::series {
+namespace {
+
+/// Invented scenario: the Harwick galvanizing works' pickling rinse, 1.00
+/// mmol/L iron(III) and 1.20 mmol/L zinc in 50 mL vessels buffered at pH 2
+/// (2e-4 mol per pH unit: the doser's 1 mol/L sodium hydroxide raises it
+/// to 5.5 with 0.7 mL), an iron(III) electrode. The general engine with the
+/// shipped constants (chemistry/data/constants.json). EDTA labelled 0.0100
+/// mol/L, truly 0.00990. Positions 5 and 6: an acid bath with iron and no
+/// zinc.
+const char* kTwoStageScenario = R"json({
+  "name": "Harwick galvanizing works, pickling rinse (invented)",
+  "seed": 43,
+  "titrant": {"name": "EDTA", "label_conc_mol_per_l": 0.0100, "true_conc_mol_per_l": 0.00990,
+              "pka": [0.0, 1.5, 2.00, 2.69, 6.13, 10.37]},
+  "burette": {"cylinder_ml": 20.0, "steps_per_cylinder": 40000, "max_rate_ml_per_min": 40.0,
+              "max_dose_ml": 20.0},
+  "electrode": {"electrode": "iron(III) ion-selective (virtual)", "metal": "Fe(III)", "e0_mv": 400.0,
+                "noise_mv": 0.05, "response_time_s": 1.0, "reports_ph": true},
+  "auxiliary_doser": {"acid": {"strong_acid_mol_per_l": 1.0},
+                      "base": {"strong_acid_mol_per_l": -1.0}},
+  "balance": {"receives_burette": false},
+  "sample_changer": {"positions": 12},
+  "sample": {"buffer_capacity_mol_per_ph": 2.0e-4},
+  "chemistry": {"sample_volume_ml": 50.0, "ph": 2.0,
+    "metals": [{"name": "Fe(III)", "conc_mol_per_l": 0.0010},
+               {"name": "Zn", "conc_mol_per_l": 0.0012}]},
+  "rack": [
+    {"position": 1, "label": "rinse tank 4"},
+    {"position": 2, "label": "rinse tank 4"},
+    {"position": 3, "label": "rinse tank 4"},
+    {"position": 5, "label": "acid bath", "chemistry": {"sample_volume_ml": 50.0, "ph": 2.0,
+      "metals": [{"name": "Fe(III)", "conc_mol_per_l": 0.0008}]}},
+    {"position": 6, "label": "acid bath", "chemistry": {"sample_volume_ml": 50.0, "ph": 2.0,
+      "metals": [{"name": "Fe(III)", "conc_mol_per_l": 0.0008}]}}
+  ]
+})json";
+
+std::string read_text(const std::string& path) {
+  std::ifstream in(path);
+  std::ostringstream out;
+  out << in.rdbuf();
+  return out.str();
+}
+
+/// The rack above with the method of docs/examples/iron-zinc-two-stage.method,
+/// the acid and base pumps, and a titer of 0.00990 mol/L determined before.
+struct TwoStageRack {
+  SeriesBench bench{kTwoStageScenario};
+  TwoStageRack() {
+    bench.prepare_lab(
+        read_text(std::string(VEQ_SOURCE_DIR) + "/docs/examples/iron-zinc-two-stage.method"));
+    bench.instruments->pumps["doser 2"] = Pump{bench.doser.get(), drivers::Reagent::acid};
+    bench.instruments->pumps["doser 3"] = Pump{bench.doser.get(), drivers::Reagent::base};
+    EXPECT_TRUE(method::record_titer(*bench.store, "EDTA 0.01 mol/L",
+                                     {0.009901, 0.009899, 0.009900},
+                                     method::parse_utc("2026-12-02T07:00:00Z").value())
+                    .has_value());
+  }
+  /// mg/L of a metal in a position's 50 mL, from the hidden truth.
+  double true_mg_per_l(int position, const std::string& metal, double g_per_mol) {
+    for (const auto& [name, mol] : bench.bench->position_truths(position).metals_mol)
+      if (name == metal)
+        return mol / 0.050 * g_per_mol * 1000.0;
+    return 0.0;
+  }
+};
+
+const EntryOutcome::Named* find_result(const EntryOutcome& e, const std::string& name) {
+  for (const auto& r : e.results)
+    if (r.name == name)
+      return &r;
+  return nullptr;
+}
+
+const std::string kTwoStageSeries =
+    "[series]\nname = Harwick rinse, two stages\n"
+    "[sample]\nid = rinse tank 4\nmethod = iron and zinc in pickling rinse\npositions = 1, 2, "
+    "3\naliquots = 50 mL\n";
+
+TEST(Series, TwoStagesInOneVesselFindTheIronAndTheZinc) {
+  TwoStageRack rack;
+  Printer printer;
+  auto outcome = rack.bench.run(kTwoStageSeries, &printer);
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* tank = find_entry(outcome, "rinse tank 4");
+  ASSERT_NE(tank, nullptr);
+  EXPECT_EQ(tank->status, "done") << tank->note;
+  ASSERT_EQ(tank->results.size(), 2u);
+  const auto* iron = find_result(*tank, "iron");
+  const auto* zinc = find_result(*tank, "zinc");
+  ASSERT_TRUE(iron && zinc && iron->mean && zinc->mean);
+  // Hidden truths: 1.00 mmol/L x 55.845 g/mol = 55.845 mg/L of iron, 1.20
+  // mmol/L x 65.38 g/mol = 78.456 mg/L of zinc (IUPAC standard atomic
+  // weights). Within 0.5 % each: the endpoints are read to about 0.01 mL of
+  // 5 mL.
+  const double fe = rack.true_mg_per_l(1, "Fe(III)", 55.845);
+  const double zn = rack.true_mg_per_l(1, "Zn", 65.38);
+  EXPECT_NEAR(fe, 55.845, 1e-9);
+  EXPECT_NEAR(zn, 78.456, 1e-9);
+  EXPECT_NEAR(*iron->mean, fe, fe * 0.005);
+  EXPECT_NEAR(*zinc->mean, zn, zn * 0.005);
+  std::printf("    iron %.3f mg/L (true %.3f), zinc %.3f mg/L (true %.3f)\n", *iron->mean, fe,
+              *zinc->mean, zn);
+  // The first result stands in the entry's own value too.
+  EXPECT_EQ(tank->mean, iron->mean);
+  // Two runs per vessel, two vessels (the third position is a spare).
+  EXPECT_EQ(tank->run_ids.size(), 4u);
+  // One entry result per named result, each with its own budget.
+  auto results = rack.bench.store->load_entry_results(tank->entry_id);
+  ASSERT_TRUE(results.has_value());
+  ASSERT_EQ(results->size(), 2u);
+  EXPECT_EQ((*results)[0].name, "iron");
+  EXPECT_EQ((*results)[1].name, "zinc");
+  for (const auto& r : *results) {
+    EXPECT_EQ(r.count, 2);
+    const auto detail = json::parse(r.detail_json);
+    EXPECT_TRUE(detail.contains("uncertainty")) << r.name;
+  }
+  // One determination per result and vessel, each with the run of its stage.
+  auto d = rack.bench.store->load_determinations(tank->entry_id);
+  ASSERT_TRUE(d.has_value());
+  ASSERT_EQ(d->size(), 4u);
+  EXPECT_EQ((*d)[0].run_id, tank->run_ids[0]);
+  EXPECT_EQ((*d)[1].run_id, tank->run_ids[1]);
+  EXPECT_EQ((*d)[1].second_run_id, tank->run_ids[0]);
+  const auto zinc_detail = json::parse((*d)[1].detail_json);
+  EXPECT_EQ(zinc_detail["result"], "zinc");
+  EXPECT_EQ(zinc_detail["counted_from"], "previous endpoint");
+  // The zinc counts the EDTA dosed past the iron's endpoint (1 mL was
+  // asked): its counted volume exceeds the second stage's own endpoint by
+  // what the first stage dosed beyond its endpoint.
+  const auto stages = zinc_detail["stages"];
+  const double carried =
+      stages[0]["dosed_ml"].get<double>() - stages[0]["endpoint_ml"].get<double>();
+  EXPECT_GT(carried, 0.9);
+  EXPECT_NEAR(zinc_detail["counted_ml"].get<double>(),
+              carried + zinc_detail["endpoint_ml"].get<double>(), 1e-9);
+  // The vessel's pH was really raised between the stages.
+  EXPECT_NEAR(rack.bench.bench->truths().vessel_ph, 5.5, 0.25);
+}
+
+TEST(Series, NoEndpointInTheSecondStageIsRepeatedThenFlagged) {
+  TwoStageRack rack;
+  auto outcome = rack.bench.run(kTwoStageSeries +
+                                "[sample]\nid = acid bath\nmethod = iron and zinc in pickling "
+                                "rinse\npositions = 5, 6\nreplicates = 1\naliquots = 50 mL\n");
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* bath = find_entry(outcome, "acid bath");
+  ASSERT_NE(bath, nullptr);
+  // No zinc: the second stage finds no endpoint in either vessel. The
+  // vessel is repeated once on its spare, then the replicate gives no
+  // value; neither result counts the iron of a vessel that failed.
+  EXPECT_EQ(bath->status, "failed") << bath->note;
+  EXPECT_NE(bath->note.find("no endpoint"), std::string::npos) << bath->note;
+  EXPECT_TRUE(bath->values.empty());
+  auto d = rack.bench.store->load_determinations(bath->entry_id);
+  ASSERT_TRUE(d.has_value());
+  ASSERT_EQ(d->size(), 2u);
+  EXPECT_EQ((*d)[0].flags, "repeated");
+  EXPECT_EQ((*d)[1].flags, "failed");
+  EXPECT_FALSE((*d)[0].counted);
+  EXPECT_EQ(bath->run_ids.size(), 4u);  // both stages of both vessels are kept
+  // The series went on: the rinse tank before it has both results.
+  EXPECT_EQ(find_entry(outcome, "rinse tank 4")->status, "done");
+}
+
+TEST(StageVolumes, TheSecondMetalCountsFromTheFirstEndpoint) {
+  // By hand: stage 1 (pH 12, calcium) ends at 9.00 mL and doses 10.00 mL in
+  // all; stage 2 (pH 10, magnesium) ends at 4.00 mL of its own counting.
+  // Magnesium from the first endpoint: (10.00 - 9.00) + 4.00 = 5.00 mL;
+  // calcium and magnesium from the start: 10.00 + 4.00 = 14.00 mL.
+  const std::vector<controller::StageReading> stages = {{9.00, 10.00, 0.01}, {4.00, 5.00, 0.02}};
+  auto second = controller::titrant_between(stages, 1, true, 2);
+  ASSERT_TRUE(second.has_value()) << second.error().message;
+  EXPECT_NEAR(second->volume_ml, 5.00, 1e-12);
+  EXPECT_NEAR(second->uncertainty_ml, std::sqrt(0.01 * 0.01 + 0.02 * 0.02), 1e-15);
+  auto total = controller::titrant_between(stages, 1, false, 2);
+  ASSERT_TRUE(total.has_value());
+  EXPECT_NEAR(total->volume_ml, 14.00, 1e-12);
+  EXPECT_NEAR(total->uncertainty_ml, 0.02, 1e-15);
+  EXPECT_NEAR(controller::titrant_between(stages, 1, false, 1)->volume_ml, 9.00, 1e-12);
+  // With 0.05 mol/L EDTA: calcium 0.05 x 9.00 = 0.450 mmol, magnesium from
+  // the difference 0.05 x (14.00 - 9.00) = 0.250 mmol, the same as from the
+  // first endpoint, 0.05 x 5.00 (by hand).
+  auto both = controller::amounts_from_total_and_first({0.05, 1.0, total->volume_ml, 0.0, 1.0},
+                                                       {0.05, 1.0, 9.00, 0.0, 1.0});
+  ASSERT_TRUE(both.has_value());
+  EXPECT_NEAR(both->second_mol, 2.5e-4, 1e-15);
+  EXPECT_NEAR(both->second_mol, 0.05 * second->volume_ml / 1000.0, 1e-15);
+  // Counting from a stage's own endpoint, a stage not measured, an endpoint
+  // beyond its stage's dosing: refused.
+  EXPECT_FALSE(controller::titrant_between(stages, 2, true, 2).has_value());
+  EXPECT_FALSE(controller::titrant_between(stages, 1, false, 3).has_value());
+  auto beyond = controller::titrant_between({{11.0, 10.0, 0.0}, {4.0, 5.0, 0.0}}, 1, true, 2);
+  ASSERT_FALSE(beyond.has_value());
+  EXPECT_NE(beyond.error().message.find("stage 1: endpoint 11 mL lies beyond"), std::string::npos)
+      << beyond.error().message;
 }
 
 }  // namespace
