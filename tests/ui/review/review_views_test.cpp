@@ -38,8 +38,10 @@ QApplication& application() {
   static int argc = 1;
   static char name[] = "veq_ui_review_tests";
   static char* argv[] = {name, nullptr};
-  static QApplication app(argc, argv);
-  return app;
+  // Never destroyed: at exit, a static QApplication would be torn down after
+  // Qt's own statics (QTest's keyboard device), which crashes the process.
+  static QApplication* app = new QApplication(argc, argv);
+  return *app;
 }
 
 /// A provider that answers every question with the same credentials and
