@@ -7,9 +7,7 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
-#include <fstream>
 #include <functional>
-#include <sstream>
 
 #include <nlohmann/json.hpp>
 
@@ -672,20 +670,15 @@ const char* kTwoStageScenario = R"json({
   ]
 })json";
 
-std::string read_text(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream out;
-  out << in.rdbuf();
-  return out.str();
-}
-
 /// The rack above with the method of docs/examples/iron-zinc-two-stage.method,
 /// the acid and base pumps, and a titer of 0.00990 mol/L determined before.
 struct TwoStageRack {
   SeriesBench bench{kTwoStageScenario};
   TwoStageRack() {
-    bench.prepare_lab(
-        read_text(std::string(VEQ_SOURCE_DIR) + "/docs/examples/iron-zinc-two-stage.method"));
+    auto m = method::read_method_file(std::string(VEQ_SOURCE_DIR) +
+                                      "/docs/examples/iron-zinc-two-stage.method");
+    EXPECT_TRUE(m.has_value()) << (m ? "" : m.error().message);
+    bench.prepare_lab(method::write_method(*m));
     bench.instruments->pumps["doser 2"] = Pump{bench.doser.get(), drivers::Reagent::acid};
     bench.instruments->pumps["doser 3"] = Pump{bench.doser.get(), drivers::Reagent::base};
     EXPECT_TRUE(method::record_titer(*bench.store, "EDTA 0.01 mol/L",
