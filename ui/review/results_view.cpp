@@ -794,9 +794,14 @@ void ResultsView::recompute_diagnostics() {
   // The stored options spell out every field, so the same method on the same
   // points gives the same diagnostics the evaluation was made with.
   QThread* thread = QThread::create([curve = std::move(curve).value(), jobs, results] {
-    for (const auto& job : jobs)
-      if (auto e = detection::evaluate(curve, job.method, job.options); e)
-        results->emplace_back(job.id, std::move(e).value());
+    for (const auto& job : jobs) {
+      try {
+        if (auto e = detection::evaluate(curve, job.method, job.options); e)
+          results->emplace_back(job.id, std::move(e).value());
+      } catch (const std::exception&) {
+        // No diagnostics for this evaluation; its stored endpoints are still drawn.
+      }
+    }
   });
   connect(thread, &QThread::finished, this, [this, results, generation] {
     if (generation != generation_)
@@ -838,9 +843,20 @@ Result<void> ResultsView::start_reevaluation(const std::string& method,
   const std::uint64_t generation = generation_;
   auto outcome = std::make_shared<std::optional<Result<detection::Evaluation>>>();
   QThread* thread = QThread::create([curve = std::move(curve).value(), method, options, outcome] {
-    *outcome = detection::evaluate(curve, method, options);
+    // Nothing may escape a worker thread: an exception becomes the error shown.
+    try {
+      *outcome = detection::evaluate(curve, method, options);
+    } catch (const std::exception& e) {
+      *outcome = Result<detection::Evaluation>(make_error(
+          ErrorKind::invalid_input, "the endpoint method stopped: " + std::string(e.what())));
+    }
   });
   connect(thread, &QThread::finished, this, [this, outcome, run_id, generation] {
+    if (!outcome->has_value()) {
+      fail(make_error(ErrorKind::aborted, "the evaluation ended without a result"));
+      emit reevaluation_finished(false, 0);
+      return;
+    }
     auto& result = **outcome;
     if (!result) {
       fail(result.error());
