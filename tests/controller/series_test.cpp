@@ -794,6 +794,52 @@ TEST(Series, NoEndpointInTheSecondStageIsRepeatedThenFlagged) {
   EXPECT_EQ(find_entry(outcome, "rinse tank 4")->status, "done");
 }
 
+TEST(Series, TheSecondMetalAsTheDifferenceOfTotalAndFirst) {
+  TwoStageRack rack;
+  // The example method with two more results: iron and zinc together from
+  // the start of stage 1 (in mmol/L: one mol of EDTA per mol of either),
+  // and zinc again as that total less the iron.
+  auto m = method::read_method_file(std::string(VEQ_SOURCE_DIR) +
+                                    "/docs/examples/iron-zinc-two-stage.method");
+  ASSERT_TRUE(m.has_value());
+  m->version = 2;
+  method::ResultRule total = m->more_results[0];
+  total.analyte = "iron and zinc";
+  total.unit = "mmol/L";
+  total.molar_mass_g_per_mol = 1.0;
+  total.lowest.reset();
+  total.highest.reset();
+  total.counted_from = method::CountedFrom::first_stage_start;
+  method::ResultRule difference = m->more_results[0];
+  difference.analyte = "zinc as the difference";
+  difference.counted_from = method::CountedFrom::first_stage_start;
+  difference.less = "iron";
+  m->more_results.push_back(total);
+  m->more_results.push_back(difference);
+  ASSERT_TRUE(method::validate_method(*m).has_value());
+  ASSERT_TRUE(method::save_method(*rack.bench.store, *m).has_value());
+  auto outcome = rack.bench.run(kTwoStageSeries);
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* tank = find_entry(outcome, "rinse tank 4");
+  ASSERT_NE(tank, nullptr);
+  ASSERT_EQ(tank->results.size(), 4u);
+  const auto* zinc = find_result(*tank, "zinc");
+  const auto* both = find_result(*tank, "iron and zinc");
+  const auto* by_difference = find_result(*tank, "zinc as the difference");
+  ASSERT_TRUE(zinc && both && by_difference && zinc->mean && both->mean && by_difference->mean);
+  // In one vessel the difference (total - iron) and the count from the
+  // iron's endpoint are the same titrant: equal to rounding.
+  for (std::size_t i = 0; i < zinc->values.size(); ++i)
+    EXPECT_NEAR(by_difference->values[i], zinc->values[i], 1e-9 * zinc->values[i]);
+  // Hidden truth: 1.00 + 1.20 = 2.20 mmol/L of metals for EDTA, within
+  // 0.2 % (the total rests on the second endpoint only).
+  EXPECT_NEAR(*both->mean, 2.20, 2.20 * 0.002);
+  auto results = rack.bench.store->load_entry_results(tank->entry_id);
+  ASSERT_TRUE(results.has_value());
+  ASSERT_EQ(results->size(), 4u);
+  EXPECT_EQ(json::parse((*results)[3].detail_json)["less"], "iron");
+}
+
 TEST(StageVolumes, TheSecondMetalCountsFromTheFirstEndpoint) {
   // By hand: stage 1 (pH 12, calcium) ends at 9.00 mL and doses 10.00 mL in
   // all; stage 2 (pH 10, magnesium) ends at 4.00 mL of its own counting.
