@@ -27,30 +27,40 @@ using nlohmann::json;
 
 using namespace text;
 
+/// Where the sections of one kind start and where each of their keys
+/// stands, for errors found after the sections were read.
+struct SectionLines {
+  std::vector<int> start;                       ///< section line of each section
+  std::vector<std::map<std::string, int>> key;  ///< line of each key of each section
+  void add(const Section& section) {
+    start.push_back(section.line);
+    std::map<std::string, int> keys;
+    for (const auto& e : section.entries)
+      keys[e.key] = e.line;
+    key.push_back(std::move(keys));
+  }
+  /// The line of a key of section i; its section's line if the key is not
+  /// given, `end` if there is no such section.
+  int field(std::size_t i, const std::string& name, int end) const {
+    if (i < key.size()) {
+      auto it = key[i].find(name);
+      if (it != key[i].end())
+        return it->second;
+    }
+    return i < start.size() ? start[i] : end;
+  }
+};
+
 /// Lines of a parsed file, for the checks between sections.
 struct Lines {
-  std::vector<int> step;                             ///< section line of each step
-  std::vector<std::map<std::string, int>> step_key;  ///< line of each key of each step
+  SectionLines steps;
+  SectionLines results;
   std::vector<int> titrant;
   std::vector<int> reagent;
-  std::vector<int> result;                             ///< section line of each result
-  std::vector<std::map<std::string, int>> result_key;  ///< line of each key of each result
-  int end = 0;                                         ///< last line of the file
+  int end = 0;  ///< last line of the file
+  int field(std::size_t i, const std::string& key) const { return steps.field(i, key, end); }
   int result_field(std::size_t i, const std::string& key) const {
-    if (i < result_key.size()) {
-      auto it = result_key[i].find(key);
-      if (it != result_key[i].end())
-        return it->second;
-    }
-    return i < result.size() ? result[i] : end;
-  }
-  int field(std::size_t i, const std::string& key) const {
-    if (i < step_key.size()) {
-      auto it = step_key[i].find(key);
-      if (it != step_key[i].end())
-        return it->second;
-    }
-    return i < step.size() ? step[i] : end;
+    return results.field(i, key, end);
   }
 };
 
@@ -517,21 +527,13 @@ Result<Method> parse_method(std::string_view text, const std::string& origin) {
       Reader r(section, errors, "[result] section");
       (have_result ? m.more_results.emplace_back() : m.result) = read_result(r);
       have_result = true;
-      lines.result.push_back(section.line);
-      std::map<std::string, int> keys;
-      for (const auto& e : section.entries)
-        keys[e.key] = e.line;
-      lines.result_key.push_back(std::move(keys));
+      lines.results.add(section);
     } else {
       Reader r(section, errors, "step");
       auto step = read_step(r);
       if (step) {
         m.steps.push_back(std::move(*step));
-        lines.step.push_back(section.line);
-        std::map<std::string, int> keys;
-        for (const auto& e : section.entries)
-          keys[e.key] = e.line;
-        lines.step_key.push_back(std::move(keys));
+        lines.steps.add(section);
       }
     }
     if (errors.failed())
