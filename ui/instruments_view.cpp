@@ -192,6 +192,12 @@ void InstrumentsView::use_simulated() {
 }
 
 void InstrumentsView::apply_and_test() {
+  if (worker_.busy()) {
+    rack_status_->setText(
+        "A series or a weighing is running: the instruments change only "
+        "after it ends (or is aborted on the Series view).");
+    return;
+  }
   for (auto& row : rows_) {
     row.status->setText("asking...");
     row.status->setStyleSheet(QString());

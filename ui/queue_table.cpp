@@ -351,6 +351,13 @@ Result<std::vector<QueueRow>> parse_pasted_rows(std::string_view text, int first
   return rows;
 }
 
+bool row_is_empty(const QueueRow& row) {
+  for (const auto& c : row.cells)
+    if (!trim(c).empty())
+      return false;
+  return true;
+}
+
 Result<series::Series> rows_to_series(const std::vector<QueueRow>& rows, const std::string& name,
                                       int check_standard_every) {
   series::Series s;
@@ -359,6 +366,8 @@ Result<series::Series> rows_to_series(const std::vector<QueueRow>& rows, const s
   std::map<int, int> position_row;
   for (std::size_t i = 0; i < rows.size(); ++i) {
     const int row = static_cast<int>(i) + 1;
+    if (row_is_empty(rows[i]))
+      continue;
     auto e = row_to_entry(rows[i], row);
     if (!e)
       return e.error();

@@ -45,6 +45,10 @@ struct QueueRow {
   const std::string& cell(QueueColumn c) const { return cells[static_cast<std::size_t>(c)]; }
 };
 
+/// A row with every cell empty (skipped when the queue becomes a series,
+/// without changing the numbers of the rows after it).
+bool row_is_empty(const QueueRow& row);
+
 /// Rows pasted from a spreadsheet: one line per row, cells separated by tabs,
 /// in the order of the columns (missing cells at the end stay empty; a first
 /// line starting with "Sample ID" is taken as the header and skipped). Each
@@ -61,7 +65,8 @@ Result<series::Entry> row_to_entry(const QueueRow& row, int row_number);
 /// The row showing an entry (its hidden fields kept in `original`).
 QueueRow entry_to_row(const series::Entry& entry);
 
-/// The whole queue as a series: every row checked, a position used by two
+/// The whole queue as a series (empty rows skipped; rows keep their numbers
+/// in messages): every row checked, a position used by two
 /// rows refused (naming both), then the controller's own checks of the
 /// series file (series_file.hpp).
 Result<series::Series> rows_to_series(const std::vector<QueueRow>& rows, const std::string& name,

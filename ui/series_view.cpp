@@ -267,13 +267,17 @@ SeriesView::SeriesView(RackWorker& worker, std::function<std::string()> database
               // Rows and the weighed series' entries go in step.
               const auto& s = worker_.weighed_series();
               std::vector<QueueRow> rows = this->rows();
-              for (std::size_t i = 0; i < rows.size() && i < s.entries.size(); ++i) {
-                const auto& portions = s.entries[i].portions;
-                if (portions.empty() || !portions.front().from_balance)
+              // (empty rows have no entry).
+              std::size_t entry = 0;
+              for (std::size_t i = 0; i < rows.size() && entry < s.entries.size(); ++i) {
+                if (row_is_empty(rows[i]))
                   continue;
-                rows[i].cell(QueueColumn::size) = portions_text(portions);
+                const auto& e = s.entries[entry++];
+                if (e.portions.empty() || !e.portions.front().from_balance)
+                  continue;
+                rows[i].cell(QueueColumn::size) = portions_text(e.portions);
                 if (rows[i].original)
-                  rows[i].original = s.entries[i];
+                  rows[i].original = e;
               }
               set_rows(rows);
             }
@@ -289,20 +293,18 @@ std::vector<QueueRow> SeriesView::rows() const {
   std::vector<QueueRow> rows;
   for (int r = 0; r < table_->rowCount(); ++r) {
     QueueRow row;
-    bool any = false;
     for (int c = 0; c < kQueueColumnCount; ++c) {
       const auto* item = table_->item(r, c);
       row.cells[static_cast<std::size_t>(c)] =
           item ? item->text().trimmed().toStdString() : std::string();
-      any = any || !row.cells[static_cast<std::size_t>(c)].empty();
     }
     if (const auto* first = table_->item(r, 0); first && first->data(Qt::UserRole).isValid()) {
       const int index = first->data(Qt::UserRole).toInt();
       if (index >= 0 && index < static_cast<int>(kept_entries_.size()))
         row.original = kept_entries_[static_cast<std::size_t>(index)];
     }
-    if (any)
-      rows.push_back(std::move(row));
+    // Empty rows stay, so that a row's number is the one the table shows.
+    rows.push_back(std::move(row));
   }
   return rows;
 }

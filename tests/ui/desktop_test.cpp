@@ -183,6 +183,17 @@ TEST(QueueTable, MalformedPastesNameTheRowAndTheColumn) {
   // docs/desktop.md).
   EXPECT_TRUE(parse_pasted_rows("x\tsample\tm\t2\t2,5\tg\t\t\t1,2", 1).has_value());
 
+  // An empty row in the table is skipped but keeps the numbering.
+  auto three =
+      parse_pasted_rows("a\tsample\tm\t1\t50\tmL\t\t\t1\nb\tsample\tm\t1\t50\tmL\t\t\t2", 1);
+  ASSERT_TRUE(three.has_value());
+  three->insert(three->begin() + 1, QueueRow{});
+  (*three)[2].cell(QueueColumn::positions) = "x";
+  auto numbered = rows_to_series(*three, "gap", 0);
+  ASSERT_FALSE(numbered.has_value());
+  EXPECT_EQ(numbered.error().message.rfind("row 3, column Positions: 'x'", 0), 0u)
+      << numbered.error().message;
+
   // A position that two rows share is refused with both rows named.
   auto rows =
       parse_pasted_rows("a\tsample\tm\t1\t50\tmL\t\t\t1\nb\tsample\tm\t1\t50\tmL\t\t\t1", 1);
