@@ -387,10 +387,24 @@ TEST_F(Desktop, SimulatedSeriesRunsEndToEndFromTheSeriesView) {
   }
   EXPECT_TRUE(found);
 
-  // The live view followed the runs: the last run's points, drawn.
+  // The live view followed the runs: every stored point reached the
+  // window, and the view holds the last run's points, drawn.
   LiveRunView& live = window.live_run();
+  auto runs = (*store)->list_runs();
+  ASSERT_TRUE(runs.has_value());
+  ASSERT_FALSE(runs->empty());
+  std::size_t stored_points = 0;
+  std::size_t last_run_points = 0;
+  for (const auto& run : *runs) {
+    auto points = (*store)->load_points(run.id);
+    ASSERT_TRUE(points.has_value());
+    stored_points += points->size();
+    if (run.id == runs->back().id)
+      last_run_points = points->size();
+  }
   EXPECT_GT(points_seen, 100);
-  EXPECT_GT(live.point_count(), 10);
+  EXPECT_EQ(static_cast<std::size_t>(points_seen), stored_points);
+  EXPECT_EQ(static_cast<std::size_t>(live.point_count()), last_run_points);
   ASSERT_TRUE(wait_until([&] { return live.drawn_point_count() == live.point_count(); }, 2000));
   EXPECT_EQ(window.view_title(window.current_view()), "Live run");
 }
