@@ -59,6 +59,7 @@ LiveRunView::LiveRunView(QWidget* parent) : QWidget(parent) {
   derivative_chart_->clear("first derivative: waiting for points");
   messages_ = new QListWidget();
   messages_->setAccessibleName("run messages");
+  messages_->setWordWrap(true);
 
   auto* charts = new QSplitter(Qt::Vertical);
   charts->addWidget(curve_chart_->widget());
@@ -102,7 +103,7 @@ void LiveRunView::begin_run(const QString& label) {
   drawn_ = 0;
   redraws_ = 0;
   dirty_ = true;
-  title_->setText("Titrating: " + label);
+  title_->setText("Sample: " + label);
   volume_->setText("0.000 mL");
   signal_->setText("-");
   drift_->setText("-");
