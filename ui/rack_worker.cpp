@@ -237,6 +237,10 @@ void RackWorker::start_series(const series::Series& s, const std::string& databa
       outcome.status = store::SeriesStatus::stopped;
       outcome.reason = std::string("internal error: ") + e.what();
     }
+    if (!outcome.burettes_stopped)
+      outcome.reason +=
+          "; WARNING: a burette did not confirm its stop: check it before the "
+          "next series";
     outcome_ = outcome;
     busy_.store(false);
     emit_later([this, st = QString(store::series_status_name(outcome.status)),
