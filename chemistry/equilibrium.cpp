@@ -16,7 +16,6 @@ namespace veq::chemistry {
 
 namespace {
 
-constexpr double kLn10 = 2.302585092994045684;
 // Rows: every free component plus every complex.
 constexpr int kMaxRows = kMaxSpecies + kMaxComponents;
 // exp() overflows just above 709; a trial point beyond this is rejected.

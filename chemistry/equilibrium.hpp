@@ -17,6 +17,9 @@
 
 namespace veq::chemistry {
 
+/// ln 10: converts log10 constants and activities to natural logarithms.
+inline constexpr double kLn10 = 2.302585092994045684;
+
 /// Largest number of components one system may have (H+ included). Fixed so that
 /// the solver's work matrices live in the object and the Newton loop never allocates.
 inline constexpr int kMaxComponents = 12;

@@ -13,7 +13,6 @@ namespace {
 
 using nlohmann::json;
 
-constexpr double kLn10 = 2.302585092994045684;
 // R ln10 / F in mV per kelvin: the Nernst slope is this times T for z = 1
 // (R = 8.314462618 J/(mol K), F = 96485.33212 C/mol, CODATA 2018).
 constexpr double kNernstMvPerKelvin = 1000.0 * 8.314462618 * kLn10 / 96485.33212;

@@ -35,14 +35,14 @@ nlohmann::json to_json(const CrossingOptions& options) {
 }
 
 namespace {
-veq::Error option_error(const std::string& field, const std::string& what) {
+veq::Error crossing_option_error(const std::string& field, const std::string& what) {
   return veq::make_error(veq::ErrorKind::invalid_input, "crossing option '" + field + "': " + what);
 }
 }  // namespace
 
 veq::Result<void> validate(const CrossingOptions& o) {
   if (!std::isfinite(o.level)) {
-    return option_error("level", "is required: give the preset signal value to cross");
+    return crossing_option_error("level", "is required: give the preset signal value to cross");
   }
   return {};
 }
@@ -55,16 +55,16 @@ veq::Result<CrossingOptions> crossing_options_from_json(const nlohmann::json& js
   for (const auto& [key, value] : json.items()) {
     if (key == "level") {
       if (!value.is_number())
-        return option_error(key, "must be a number");
+        return crossing_option_error(key, "must be a number");
       o.level = value.get<double>();
     } else if (key == "direction") {
       const auto d =
           value.is_string() ? crossing_direction_from_name(value.get<std::string>()) : std::nullopt;
       if (!d)
-        return option_error(key, "must be \"either\", \"rising\" or \"falling\"");
+        return crossing_option_error(key, "must be \"either\", \"rising\" or \"falling\"");
       o.direction = *d;
     } else {
-      return option_error(key, "unknown option; known: level, direction");
+      return crossing_option_error(key, "unknown option; known: level, direction");
     }
   }
   if (auto ok = validate(o); !ok)

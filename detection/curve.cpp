@@ -34,7 +34,7 @@ std::optional<SignalKind> signal_kind_from_name(std::string_view name) {
 
 namespace {
 
-veq::Error invalid(std::string message) {
+veq::Error curve_invalid(std::string message) {
   return veq::make_error(veq::ErrorKind::invalid_input, std::move(message));
 }
 
@@ -55,14 +55,14 @@ std::optional<veq::Error> check_column(const std::vector<double>& column, std::s
   if (column.empty())
     return std::nullopt;
   if (column.size() != rows) {
-    return invalid(std::string("column '") + name + "' has " + std::to_string(column.size()) +
-                   " rows but 'volume_ml' has " + std::to_string(rows) +
-                   "; give every column the same number of rows or leave it out");
+    return curve_invalid(std::string("column '") + name + "' has " + std::to_string(column.size()) +
+                         " rows but 'volume_ml' has " + std::to_string(rows) +
+                         "; give every column the same number of rows or leave it out");
   }
   for (std::size_t i = 0; i < rows; ++i) {
     if (!std::isfinite(column[i])) {
-      return invalid("row " + std::to_string(i + 1) + ": '" + name + "' is " +
-                     number_text(column[i]) + "; every value must be a finite number");
+      return curve_invalid("row " + std::to_string(i + 1) + ": '" + name + "' is " +
+                           number_text(column[i]) + "; every value must be a finite number");
     }
   }
   return std::nullopt;
@@ -73,9 +73,9 @@ std::optional<veq::Error> check_column(const std::vector<double>& column, std::s
 veq::Result<Curve> Curve::from_columns(CurveColumns columns) {
   const std::size_t rows = columns.volume_ml.size();
   if (columns.signal.size() != rows) {
-    return invalid("column 'signal' has " + std::to_string(columns.signal.size()) +
-                   " rows but 'volume_ml' has " + std::to_string(rows) +
-                   "; give every column the same number of rows");
+    return curve_invalid("column 'signal' has " + std::to_string(columns.signal.size()) +
+                         " rows but 'volume_ml' has " + std::to_string(rows) +
+                         "; give every column the same number of rows");
   }
   if (auto error = check_column(columns.volume_ml, rows, "volume_ml"))
     return *error;
@@ -86,15 +86,15 @@ veq::Result<Curve> Curve::from_columns(CurveColumns columns) {
   if (auto error = check_column(columns.temperature_c, rows, "temperature_c"))
     return *error;
   if (!std::isfinite(columns.sample_volume_ml) || columns.sample_volume_ml < 0.0) {
-    return invalid("sample volume is " + number_text(columns.sample_volume_ml) +
-                   " mL; give a finite volume >= 0 mL (0 means unknown)");
+    return curve_invalid("sample volume is " + number_text(columns.sample_volume_ml) +
+                         " mL; give a finite volume >= 0 mL (0 means unknown)");
   }
   for (std::size_t i = 1; i < rows; ++i) {
     if (columns.volume_ml[i] < columns.volume_ml[i - 1]) {
-      return invalid("row " + std::to_string(i + 1) + ": volume " +
-                     number_text(columns.volume_ml[i]) + " mL is smaller than " +
-                     number_text(columns.volume_ml[i - 1]) + " mL in row " + std::to_string(i) +
-                     "; volumes must not go backwards");
+      return curve_invalid("row " + std::to_string(i + 1) + ": volume " +
+                           number_text(columns.volume_ml[i]) + " mL is smaller than " +
+                           number_text(columns.volume_ml[i - 1]) + " mL in row " +
+                           std::to_string(i) + "; volumes must not go backwards");
     }
   }
 
@@ -136,9 +136,10 @@ veq::Result<Curve> Curve::from_columns(CurveColumns columns) {
   }
 
   if (curve.size() < kMinimumPoints) {
-    return invalid("the curve has " + std::to_string(curve.size()) +
-                   " points with distinct volumes (" + std::to_string(rows) +
-                   " rows given); at least " + std::to_string(kMinimumPoints) + " are needed");
+    return curve_invalid("the curve has " + std::to_string(curve.size()) +
+                         " points with distinct volumes (" + std::to_string(rows) +
+                         " rows given); at least " + std::to_string(kMinimumPoints) +
+                         " are needed");
   }
   return curve;
 }

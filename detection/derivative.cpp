@@ -38,7 +38,7 @@ nlohmann::json to_json(const DerivativeOptions& options) {
 
 namespace {
 
-veq::Error option_error(const std::string& field, const std::string& what) {
+veq::Error derivative_option_error(const std::string& field, const std::string& what) {
   return veq::make_error(veq::ErrorKind::invalid_input,
                          "derivative option '" + field + "': " + what);
 }
@@ -48,21 +48,23 @@ veq::Error option_error(const std::string& field, const std::string& what) {
 veq::Result<void> validate(const DerivativeOptions& o) {
   if (o.window_points < 3 || o.window_points % 2 == 0 ||
       o.window_points > static_cast<int>(local_fit::kMaxWindowPoints)) {
-    return option_error("window_points", "must be an odd number from 3 to " +
-                                             std::to_string(local_fit::kMaxWindowPoints) +
-                                             ", got " + std::to_string(o.window_points));
+    return derivative_option_error("window_points",
+                                   "must be an odd number from 3 to " +
+                                       std::to_string(local_fit::kMaxWindowPoints) + ", got " +
+                                       std::to_string(o.window_points));
   }
   if (!std::isfinite(o.min_break_height) || o.min_break_height < 0.0) {
-    return option_error("min_break_height", "must be a finite number >= 0 (0 = default)");
+    return derivative_option_error("min_break_height",
+                                   "must be a finite number >= 0 (0 = default)");
   }
   if (!std::isfinite(o.spike_threshold_sigma) || o.spike_threshold_sigma <= 0.0) {
-    return option_error("spike_threshold_sigma", "must be a finite number > 0");
+    return derivative_option_error("spike_threshold_sigma", "must be a finite number > 0");
   }
   if (!(o.completion_fraction > 0.0 && o.completion_fraction < 1.0)) {
-    return option_error("completion_fraction", "must lie between 0 and 1 (exclusive)");
+    return derivative_option_error("completion_fraction", "must lie between 0 and 1 (exclusive)");
   }
   if (o.min_points_after_endpoint < 0) {
-    return option_error("min_points_after_endpoint", "must be >= 0");
+    return derivative_option_error("min_points_after_endpoint", "must be >= 0");
   }
   return {};
 }
@@ -76,12 +78,12 @@ veq::Result<DerivativeOptions> derivative_options_from_json(const nlohmann::json
   for (const auto& [key, value] : json.items()) {
     if (key == "window_points" || key == "min_points_after_endpoint") {
       if (!value.is_number_integer())
-        return option_error(key, "must be an integer");
+        return derivative_option_error(key, "must be an integer");
       (key == "window_points" ? o.window_points : o.min_points_after_endpoint) = value.get<int>();
     } else if (key == "min_break_height" || key == "spike_threshold_sigma" ||
                key == "completion_fraction") {
       if (!value.is_number())
-        return option_error(key, "must be a number");
+        return derivative_option_error(key, "must be a number");
       const double x = value.get<double>();
       if (key == "min_break_height")
         o.min_break_height = x;
@@ -91,13 +93,13 @@ veq::Result<DerivativeOptions> derivative_options_from_json(const nlohmann::json
         o.completion_fraction = x;
     } else if (key == "remove_spikes" || key == "refine_sharp_breaks") {
       if (!value.is_boolean())
-        return option_error(key, "must be true or false");
+        return derivative_option_error(key, "must be true or false");
       (key == "remove_spikes" ? o.remove_spikes : o.refine_sharp_breaks) = value.get<bool>();
     } else {
-      return option_error(key,
-                          "unknown option; known: window_points, min_break_height, "
-                          "remove_spikes, spike_threshold_sigma, completion_fraction, "
-                          "min_points_after_endpoint, refine_sharp_breaks");
+      return derivative_option_error(key,
+                                     "unknown option; known: window_points, min_break_height, "
+                                     "remove_spikes, spike_threshold_sigma, completion_fraction, "
+                                     "min_points_after_endpoint, refine_sharp_breaks");
     }
   }
   if (auto ok = validate(o); !ok)

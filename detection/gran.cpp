@@ -49,7 +49,7 @@ nlohmann::json to_json(const GranOptions& options) {
 
 namespace {
 
-veq::Error option_error(const std::string& field, const std::string& what) {
+veq::Error gran_option_error(const std::string& field, const std::string& what) {
   return veq::make_error(veq::ErrorKind::invalid_input, "gran option '" + field + "': " + what);
 }
 
@@ -64,13 +64,13 @@ constexpr double kIncompleteFraction = 0.3;
 
 veq::Result<void> validate(const GranOptions& o) {
   if (!std::isfinite(o.slope_mv_per_decade) || o.slope_mv_per_decade < 0.0) {
-    return option_error("slope_mv_per_decade", "must be a finite number >= 0 (0 = fit)");
+    return gran_option_error("slope_mv_per_decade", "must be a finite number >= 0 (0 = fit)");
   }
   if (!std::isfinite(o.acceptance_sigma) || o.acceptance_sigma <= 0.0) {
-    return option_error("acceptance_sigma", "must be a finite number > 0");
+    return gran_option_error("acceptance_sigma", "must be a finite number > 0");
   }
   if (o.min_points_per_side < 3)
-    return option_error("min_points_per_side", "must be >= 3");
+    return gran_option_error("min_points_per_side", "must be >= 3");
   return {};
 }
 
@@ -82,32 +82,33 @@ veq::Result<GranOptions> gran_options_from_json(const nlohmann::json& json) {
   for (const auto& [key, value] : json.items()) {
     if (key == "slope_mv_per_decade" || key == "acceptance_sigma") {
       if (!value.is_number())
-        return option_error(key, "must be a number");
+        return gran_option_error(key, "must be a number");
       (key == "slope_mv_per_decade" ? o.slope_mv_per_decade : o.acceptance_sigma) =
           value.get<double>();
     } else if (key == "sides") {
       const auto sides = value.is_string() ? gran_sides_from_name(value.get<std::string>())
                                            : std::optional<GranSides>{};
       if (!sides)
-        return option_error(key, "must be \"both\", \"before\" or \"after\"");
+        return gran_option_error(key, "must be \"both\", \"before\" or \"after\"");
       o.sides = *sides;
     } else if (key == "correct_metal_fraction") {
       if (!value.is_boolean())
-        return option_error(key, "must be true or false");
+        return gran_option_error(key, "must be true or false");
       o.correct_metal_fraction = value.get<bool>();
     } else if (key == "min_points_per_side") {
       if (!value.is_number_integer())
-        return option_error(key, "must be an integer");
+        return gran_option_error(key, "must be an integer");
       o.min_points_per_side = value.get<int>();
     } else if (key == "sample") {
       auto sample = fit_support::sample_from_option(value);
       if (!sample)
-        return option_error(key, sample.error().message);
+        return gran_option_error(key, sample.error().message);
       o.sample = std::move(*sample);
     } else {
-      return option_error(key,
-                          "unknown option; known: slope_mv_per_decade, sides, "
-                          "correct_metal_fraction, acceptance_sigma, min_points_per_side, sample");
+      return gran_option_error(
+          key,
+          "unknown option; known: slope_mv_per_decade, sides, "
+          "correct_metal_fraction, acceptance_sigma, min_points_per_side, sample");
     }
   }
   if (auto ok = validate(o); !ok)

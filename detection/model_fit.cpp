@@ -56,11 +56,11 @@ nlohmann::json to_json(const ModelFitOptions& options) {
 
 namespace {
 
-veq::Error option_error(const std::string& field, const std::string& what) {
+veq::Error model_fit_option_error(const std::string& field, const std::string& what) {
   return veq::make_error(veq::ErrorKind::invalid_input, "model option '" + field + "': " + what);
 }
 
-veq::Error invalid(std::string message) {
+veq::Error model_fit_invalid(std::string message) {
   return veq::make_error(veq::ErrorKind::invalid_input, std::move(message));
 }
 
@@ -70,46 +70,48 @@ constexpr double kLn10 = 2.302585092994045684;
 
 veq::Result<void> validate(const ModelFitOptions& o) {
   if (!std::isfinite(o.slope_mv_per_decade) || o.slope_mv_per_decade < 0.0)
-    return option_error("slope_mv_per_decade", "must be a finite number >= 0 (0 = fit)");
+    return model_fit_option_error("slope_mv_per_decade", "must be a finite number >= 0 (0 = fit)");
   if (o.max_evaluations < 10 || o.max_evaluations > 100000)
-    return option_error("max_evaluations", "must lie within 10..100000");
+    return model_fit_option_error("max_evaluations", "must lie within 10..100000");
   return {};
 }
 
 veq::Result<ModelFitOptions> model_fit_options_from_json(const nlohmann::json& json) {
   if (!json.is_object())
-    return invalid("model options must be a JSON object");
+    return model_fit_invalid("model options must be a JSON object");
   ModelFitOptions o;
   for (const auto& [key, value] : json.items()) {
     if (key == "level") {
       const auto level = value.is_string() ? model_level_from_name(value.get<std::string>())
                                            : std::optional<ModelLevel>{};
       if (!level)
-        return option_error(key, "must be \"automatic\", \"one_to_one\" or \"speciation\"");
+        return model_fit_option_error(key,
+                                      "must be \"automatic\", \"one_to_one\" or \"speciation\"");
       o.level = *level;
     } else if (key == "fit_constants" || key == "fit_lag" || key == "fit_drift") {
       if (!value.is_boolean())
-        return option_error(key, "must be true or false");
+        return model_fit_option_error(key, "must be true or false");
       (key == "fit_constants" ? o.fit_constants
        : key == "fit_lag"     ? o.fit_lag
                               : o.fit_drift) = value.get<bool>();
     } else if (key == "slope_mv_per_decade") {
       if (!value.is_number())
-        return option_error(key, "must be a number");
+        return model_fit_option_error(key, "must be a number");
       o.slope_mv_per_decade = value.get<double>();
     } else if (key == "max_evaluations") {
       if (!value.is_number_integer())
-        return option_error(key, "must be an integer");
+        return model_fit_option_error(key, "must be an integer");
       o.max_evaluations = value.get<int>();
     } else if (key == "sample") {
       auto sample = fit_support::sample_from_option(value);
       if (!sample)
-        return option_error(key, sample.error().message);
+        return model_fit_option_error(key, sample.error().message);
       o.sample = std::move(*sample);
     } else {
-      return option_error(key,
-                          "unknown option; known: level, fit_constants, slope_mv_per_decade, "
-                          "fit_lag, fit_drift, max_evaluations, sample");
+      return model_fit_option_error(
+          key,
+          "unknown option; known: level, fit_constants, slope_mv_per_decade, "
+          "fit_lag, fit_drift, max_evaluations, sample");
     }
   }
   if (auto ok = validate(o); !ok)
@@ -276,7 +278,7 @@ class SpeciationChemistry final : public Chemistry {
     if (!model)
       return model.error();
     if (signal == SignalModel::absorbance && model->indicator_component() < 0) {
-      return invalid(
+      return model_fit_invalid(
           "the speciation model describes absorbance through an indicator; the sample has none");
     }
     std::unique_ptr<SpeciationChemistry> c(
@@ -882,7 +884,7 @@ veq::Result<Evaluation> fit_titration_model(const Curve& curve, const ModelFitOp
   if (auto ok = validate(options); !ok)
     throw std::invalid_argument(ok.error().message);
   if (!options.sample) {
-    return invalid(
+    return model_fit_invalid(
         "the model fit needs the sample chemistry: give the option 'sample' (a sample document "
         "as for veq predict; on the command line --sample FILE)");
   }
@@ -914,7 +916,7 @@ veq::Result<Evaluation> fit_titration_model(const Curve& curve, const ModelFitOp
       signal = SignalModel::absorbance;
       for (double& s : y) {
         if (!(s > 0.0)) {
-          return invalid(
+          return model_fit_invalid(
               "the model fit cannot use a transmittance of 0 % or less (no absorbance); remove "
               "those readings");
         }
@@ -923,7 +925,7 @@ veq::Result<Evaluation> fit_titration_model(const Curve& curve, const ModelFitOp
       break;
     case SignalKind::ph:
     default:
-      return invalid(
+      return model_fit_invalid(
           "the model fit describes potential_mv, p_metal, absorbance or transmittance curves, "
           "not " +
           std::string(signal_kind_name(curve.kind())));
@@ -946,10 +948,11 @@ veq::Result<Evaluation> fit_titration_model(const Curve& curve, const ModelFitOp
   }
   if (level == ModelLevel::one_to_one) {
     if (metals != 1)
-      return invalid("the one_to_one model describes one metal; this sample has " +
-                     std::to_string(metals) + " (use level speciation)");
+      return model_fit_invalid("the one_to_one model describes one metal; this sample has " +
+                               std::to_string(metals) + " (use level speciation)");
     if (!chem.sample.ph)
-      return invalid("the one_to_one model needs a fixed pH in the sample (use level speciation)");
+      return model_fit_invalid(
+          "the one_to_one model needs a fixed pH in the sample (use level speciation)");
   }
 
   // Conditional constant and side reaction at the sample's pH with its ligands

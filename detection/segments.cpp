@@ -18,7 +18,7 @@ nlohmann::json to_json(const SegmentsOptions& options) {
 
 namespace {
 
-veq::Error option_error(const std::string& field, const std::string& what) {
+veq::Error segments_option_error(const std::string& field, const std::string& what) {
   return veq::make_error(veq::ErrorKind::invalid_input, "segments option '" + field + "': " + what);
 }
 
@@ -26,13 +26,13 @@ veq::Error option_error(const std::string& field, const std::string& what) {
 
 veq::Result<void> validate(const SegmentsOptions& o) {
   if (o.min_points_per_segment < 2) {
-    return option_error("min_points_per_segment", "must be >= 2");
+    return segments_option_error("min_points_per_segment", "must be >= 2");
   }
   if (!std::isfinite(o.acceptance_sigma) || o.acceptance_sigma <= 0.0) {
-    return option_error("acceptance_sigma", "must be a finite number > 0");
+    return segments_option_error("acceptance_sigma", "must be a finite number > 0");
   }
   if (!(o.seed_fraction > 0.0 && o.seed_fraction <= 1.0)) {
-    return option_error("seed_fraction", "must lie in (0, 1]");
+    return segments_option_error("seed_fraction", "must lie in (0, 1]");
   }
   return {};
 }
@@ -45,20 +45,21 @@ veq::Result<SegmentsOptions> segments_options_from_json(const nlohmann::json& js
   for (const auto& [key, value] : json.items()) {
     if (key == "dilution_correction") {
       if (!value.is_boolean())
-        return option_error(key, "must be true or false");
+        return segments_option_error(key, "must be true or false");
       o.dilution_correction = value.get<bool>();
     } else if (key == "min_points_per_segment") {
       if (!value.is_number_integer())
-        return option_error(key, "must be an integer");
+        return segments_option_error(key, "must be an integer");
       o.min_points_per_segment = value.get<int>();
     } else if (key == "acceptance_sigma" || key == "seed_fraction") {
       if (!value.is_number())
-        return option_error(key, "must be a number");
+        return segments_option_error(key, "must be a number");
       (key == "acceptance_sigma" ? o.acceptance_sigma : o.seed_fraction) = value.get<double>();
     } else {
-      return option_error(key,
-                          "unknown option; known: dilution_correction, min_points_per_segment, "
-                          "acceptance_sigma, seed_fraction");
+      return segments_option_error(
+          key,
+          "unknown option; known: dilution_correction, min_points_per_segment, "
+          "acceptance_sigma, seed_fraction");
     }
   }
   if (auto ok = validate(o); !ok)

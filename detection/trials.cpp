@@ -16,7 +16,7 @@ namespace veq::detection {
 
 namespace {
 
-veq::Error invalid(std::string message) {
+veq::Error trials_invalid(std::string message) {
   return veq::make_error(veq::ErrorKind::invalid_input, std::move(message));
 }
 
@@ -145,7 +145,7 @@ veq::Result<TrialScenario> builtin_trial_scenario(std::string_view name) {
   std::string list;
   for (std::string_view known : kScenarioNames)
     list += (list.empty() ? "" : ", ") + std::string(known);
-  return invalid("unknown trial scenario '" + std::string(name) + "'; known: " + list);
+  return trials_invalid("unknown trial scenario '" + std::string(name) + "'; known: " + list);
 }
 
 nlohmann::json to_json(const TrialScenario& t) {
@@ -173,7 +173,7 @@ nlohmann::json to_json(const TrialScenario& t) {
 
 veq::Result<TrialScenario> trial_scenario_from_json(const nlohmann::json& json) {
   if (!json.is_object())
-    return invalid("a trial scenario must be a JSON object");
+    return trials_invalid("a trial scenario must be a JSON object");
   TrialScenario t;
   if (json.contains("name") && json["name"].is_string()) {
     // Start from the built-in scenario of that name, if there is one.
@@ -189,28 +189,28 @@ veq::Result<TrialScenario> trial_scenario_from_json(const nlohmann::json& json) 
     const nlohmann::json& value = item.value();
     auto number = [&](double& field) -> std::optional<veq::Error> {
       if (!value.is_number() || !std::isfinite(value.get<double>()))
-        return invalid("trial scenario field '" + key + "' must be a number");
+        return trials_invalid("trial scenario field '" + key + "' must be a number");
       field = value.get<double>();
       return std::nullopt;
     };
     std::optional<veq::Error> error;
     if (key == "name") {
       if (!value.is_string())
-        error = invalid("trial scenario field 'name' must be a string");
+        error = trials_invalid("trial scenario field 'name' must be a string");
     } else if (key == "description") {
       if (!value.is_string())
-        error = invalid("trial scenario field 'description' must be a string");
+        error = trials_invalid("trial scenario field 'description' must be a string");
       else
         t.description = value.get<std::string>();
     } else if (key == "sample") {
       auto sample = chemistry::parse_sample_json(value.dump());
       if (!sample)
-        error = invalid("trial scenario field 'sample': " + sample.error().message);
+        error = trials_invalid("trial scenario field 'sample': " + sample.error().message);
       else
         t.sample = std::move(*sample);
     } else if (key == "spikes") {
       if (!value.is_number_integer() || value.get<int>() < 0)
-        error = invalid("trial scenario field 'spikes' must be a whole number >= 0");
+        error = trials_invalid("trial scenario field 'spikes' must be a whole number >= 0");
       else
         t.spikes = value.get<int>();
     } else if (key == "amount_spread_percent") {
@@ -246,7 +246,7 @@ veq::Result<TrialScenario> trial_scenario_from_json(const nlohmann::json& json) 
     } else if (key == "spike_size") {
       error = number(t.spike_size);
     } else {
-      error = invalid("unknown trial scenario field '" + key + "'");
+      error = trials_invalid("unknown trial scenario field '" + key + "'");
     }
     if (error)
       return *error;
@@ -254,12 +254,12 @@ veq::Result<TrialScenario> trial_scenario_from_json(const nlohmann::json& json) 
   if (!(t.step_ml > 0.0) || t.fine_step_ml < 0.0 || t.noise < 0.0 || t.lag_s < 0.0 ||
       t.reading_interval_s < 0.0 || !(t.dose_rate_ml_per_min > 0.0) ||
       t.amount_spread_percent < 0.0 || t.amount_spread_percent >= 100.0 || t.end_volume_ml < 0.0) {
-    return invalid(
+    return trials_invalid(
         "trial scenario: step_ml and dose_rate_ml_per_min must be > 0; fine_step_ml, noise, "
         "lag_s, reading_interval_s, end_volume_ml >= 0; amount_spread_percent in [0, 100)");
   }
   if (t.sample.metals.empty())
-    return invalid("trial scenario: the sample has no metal");
+    return trials_invalid("trial scenario: the sample has no metal");
   return t;
 }
 
@@ -273,8 +273,9 @@ veq::Result<TrialCurve> simulate_trial_curve(const TrialScenario& scenario, std:
   const chemistry::SampleComposition& nominal = scenario.sample;
   if (nominal.metals.empty() || !(nominal.titrant.conc_mol_per_l > 0.0) ||
       !(nominal.sample_volume_ml > 0.0)) {
-    return invalid("trial scenario '" + scenario.name +
-                   "': the sample needs a metal, a titrant concentration and a sample volume");
+    return trials_invalid(
+        "trial scenario '" + scenario.name +
+        "': the sample needs a metal, a titrant concentration and a sample volume");
   }
   // The truth: amounts, constants and electrode differ from the nominal.
   chemistry::SampleComposition truth = nominal;
@@ -285,7 +286,7 @@ veq::Result<TrialCurve> simulate_trial_curve(const TrialScenario& scenario, std:
       titrant = &l;
   }
   if (!titrant)
-    return invalid("titrant '" + nominal.titrant.name + "' is not in the constants library");
+    return trials_invalid("titrant '" + nominal.titrant.name + "' is not in the constants library");
   for (auto& metal : truth.metals) {
     metal.conc_mol_per_l *= 1.0 + uniform(scenario.amount_spread_percent) / 100.0;
     const double shift = uniform(scenario.constant_spread_log10);
@@ -419,8 +420,8 @@ veq::Result<TrialMethod> parse_trial_method(std::string_view text) {
     std::string list;
     for (std::string_view k : known)
       list += (list.empty() ? "" : ", ") + std::string(k);
-    return invalid("unknown endpoint method '" + m.method + "' in '" + std::string(text) +
-                   "'; known: " + list);
+    return trials_invalid("unknown endpoint method '" + m.method + "' in '" + std::string(text) +
+                          "'; known: " + list);
   }
   if (colon == std::string_view::npos)
     return m;
@@ -430,8 +431,8 @@ veq::Result<TrialMethod> parse_trial_method(std::string_view text) {
     const std::string_view item = rest.substr(0, comma);
     const auto eq = item.find('=');
     if (eq == std::string_view::npos || eq == 0) {
-      return invalid("expected NAME=VALUE after the method name, got '" + std::string(item) +
-                     "' in '" + std::string(text) + "'");
+      return trials_invalid("expected NAME=VALUE after the method name, got '" + std::string(item) +
+                            "' in '" + std::string(text) + "'");
     }
     const std::string value(item.substr(eq + 1));
     nlohmann::json parsed = nlohmann::json::parse(value, nullptr, false);

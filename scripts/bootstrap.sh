@@ -46,8 +46,12 @@ build() {
   if command -v ccache >/dev/null 2>&1; then launcher=(-DCMAKE_CXX_COMPILER_LAUNCHER=ccache); fi
   # Optimised like RelWithDebInfo (-O2) but without debug information: -g
   # costs about a quarter of the build's time on 2 cores (DEVELOPERS.md, CI).
+  # Unity build (the files of a target compiled a few at a time as one): the
+  # headers (Qt, Boost.Asio, GoogleTest) are parsed once per batch, not once
+  # per file (41 % less compile time measured on a clang build of the driver
+  # and simulator tests; DEVELOPERS.md, CI).
   cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release "-DCMAKE_CXX_FLAGS_RELEASE=-O2 -DNDEBUG" \
-    -DVEQ_WERROR=ON "${launcher[@]}"
+    -DCMAKE_UNITY_BUILD=ON -DVEQ_WERROR=ON "${launcher[@]}"
   cmake --build build --parallel "$(nproc)"
 }
 

@@ -23,7 +23,10 @@ namespace veq::simulator {
 namespace asio = boost::asio;
 using asio::ip::tcp;
 
-namespace {
+// A named namespace, not an anonymous one: DeviceServer::Impl holds Lines,
+// and a class with a member of internal linkage draws a warning when files
+// are compiled together (unity builds).
+namespace device_server_lines {
 
 /// One served device and its line (a pseudo-terminal master or a TCP socket).
 struct Line {
@@ -48,7 +51,9 @@ struct Line {
   std::uint64_t session = 0;
 };
 
-}  // namespace
+}  // namespace device_server_lines
+
+using device_server_lines::Line;
 
 class DeviceServer::Impl {
  public:

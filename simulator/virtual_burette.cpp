@@ -8,12 +8,6 @@ namespace veq::simulator {
 namespace protocol = drivers::protocol;
 using drivers::Duration;
 
-namespace {
-// Default host-silence stop of a veq instrument before the host sets its own
-// (docs/protocol.md): 10 s.
-constexpr double kDefaultHostSilenceS = 10.0;
-}  // namespace
-
 VirtualBurette::VirtualBurette(const BuretteSpec& spec, drivers::Clock& clock, std::uint64_t seed)
     : VirtualDevice(clock, seed),
       spec_(spec),

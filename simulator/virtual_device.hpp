@@ -18,6 +18,10 @@
 
 namespace veq::simulator {
 
+/// Default host-silence stop of a veq instrument before the host sets its
+/// own (docs/protocol.md), in seconds.
+inline constexpr double kDefaultHostSilenceS = 10.0;
+
 class VirtualDevice : public drivers::ByteDevice {
  public:
   VirtualDevice(drivers::Clock& clock, std::uint64_t seed);

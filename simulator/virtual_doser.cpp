@@ -10,9 +10,6 @@ using drivers::Duration;
 using drivers::Reagent;
 
 namespace {
-/// The host-silence stop before the host sets its own (docs/protocol.md), s.
-constexpr double kDefaultHostSilenceS = 10.0;
-
 int index_of(Reagent r) {
   return static_cast<int>(r) - 1;
 }

@@ -36,9 +36,9 @@ struct PointStats {
 
 // Runs a method over the 50 curves of a scenario; statistics per
 // equivalence point (errors in % of the true volume).
-std::vector<PointStats> run(const std::string& name, const std::string& method,
-                            nlohmann::json options = nlohmann::json::object(),
-                            std::vector<double>* normalised = nullptr) {
+std::vector<PointStats> run_trials(const std::string& name, const std::string& method,
+                                   nlohmann::json options = nlohmann::json::object(),
+                                   std::vector<double>* normalised = nullptr) {
   const std::string label = method + (options.empty() ? "" : " " + options.dump());
   const auto& outcomes = testing::trial_outcomes(name, method, options);
   std::vector<PointStats> out;
@@ -107,7 +107,7 @@ TEST(ModelFit, HarrisCalciumCurveGivesTheBooksValues) {
 }
 
 TEST(ModelFit, StrongBreak) {
-  const auto s = run("strong_break", "model");
+  const auto s = run_trials("strong_break", "model");
   ASSERT_EQ(s.size(), 1u);
   EXPECT_EQ(s[0].found, 50u);
   EXPECT_LT(std::abs(s[0].bias), 0.005);
@@ -137,14 +137,14 @@ TEST(ModelFit, BothLevelsAgreeWhereTheSampleIsOneToOne) {
 
 TEST(ModelFit, AmmoniaBufferCopperAndZinc) {
   for (const char* name : {"ammonia_copper", "ammonia_zinc"}) {
-    const auto s = run(name, "model");
+    const auto s = run_trials(name, "model");
     EXPECT_EQ(s[0].found, 50u);
     EXPECT_LT(std::abs(s[0].bias), 0.005) << name;
     EXPECT_LT(s[0].sd, 0.005) << name;
   }
   // The 1:1 level holds the metal's side reaction at its undiluted value:
   // biased and scattered by several times more.
-  const auto one = run("ammonia_copper", "model", {{"level", "one_to_one"}});
+  const auto one = run_trials("ammonia_copper", "model", {{"level", "one_to_one"}});
   EXPECT_GT(std::abs(one[0].bias) + one[0].sd, 5.0 * 0.005);
 }
 
@@ -153,13 +153,13 @@ TEST(ModelFit, WeakBreaksWhereTheDerivativeFails) {
   // 4.2, 3.2, 2.7, below the common-practice criterion of 6 for a sharp
   // endpoint). The model fit uses the whole curve; the derivative only the
   // flat top of a shallow break.
-  const auto k7 = run("weak_log_k_7", "model");
+  const auto k7 = run_trials("weak_log_k_7", "model");
   EXPECT_EQ(k7[0].found, 50u);
   EXPECT_LT(std::abs(k7[0].bias), 0.005);
   EXPECT_LT(k7[0].sd, 0.02);
   for (const char* name : {"weak_log_k_6", "weak_log_k_5_5"}) {
-    const auto model = run(name, "model");
-    const auto derivative = run(name, "derivative");
+    const auto model = run_trials(name, "model");
+    const auto derivative = run_trials(name, "derivative");
     EXPECT_EQ(model[0].found, 50u);
     EXPECT_LT(std::abs(model[0].bias), 0.01) << name;
     EXPECT_LT(model[0].sd, 0.06) << name;
@@ -172,7 +172,7 @@ TEST(ModelFit, WeakBreaksWhereTheDerivativeFails) {
 TEST(ModelFit, TwoMetalsWithDifferentConstants) {
   // Calcium (log K' 10.1) and magnesium (8.3) read by a calcium electrode:
   // the first break is a gentle bend, the second sharp. One endpoint each.
-  const auto s = run("two_metals", "model");
+  const auto s = run_trials("two_metals", "model");
   ASSERT_EQ(s.size(), 2u);
   EXPECT_EQ(s[0].found, 50u);
   EXPECT_EQ(s[1].found, 50u);
@@ -186,9 +186,10 @@ TEST(ModelFit, SlowElectrodeWithDrift) {
   // Response time 8 s, readings 10 s after each dose, drift 0.3 mV/min: the
   // derivative endpoint comes late by about a third of a percent; the fitted
   // lag and drift take that away.
-  const auto model = run("slow_electrode", "model");
-  const auto still = run("slow_electrode", "model", {{"fit_lag", false}, {"fit_drift", false}});
-  const auto derivative = run("slow_electrode", "derivative");
+  const auto model = run_trials("slow_electrode", "model");
+  const auto still =
+      run_trials("slow_electrode", "model", {{"fit_lag", false}, {"fit_drift", false}});
+  const auto derivative = run_trials("slow_electrode", "derivative");
   EXPECT_EQ(model[0].found, 50u);
   EXPECT_LT(std::abs(model[0].bias), 0.04);
   EXPECT_LT(model[0].sd, 0.04);
@@ -209,8 +210,8 @@ TEST(ModelFit, IndicatorAbsorbance) {
   // Magnesium with Eriochrome Black T at 620 nm: the colour changes before
   // the equivalence point (the indicator's titration error), the fitted
   // model finds the equivalence point itself.
-  const auto model = run("indicator", "model");
-  const auto derivative = run("indicator", "derivative");
+  const auto model = run_trials("indicator", "model");
+  const auto derivative = run_trials("indicator", "derivative");
   EXPECT_EQ(model[0].found, 50u);
   EXPECT_LT(std::abs(model[0].bias), 0.005);
   EXPECT_LT(model[0].sd, 0.02);
@@ -224,7 +225,7 @@ TEST(ModelFit, UncertaintyIsHonest) {
   std::vector<double> normalised;
   for (const char* name :
        {"strong_break", "weak_log_k_7", "weak_log_k_6", "weak_log_k_5_5", "ammonia_copper"})
-    run(name, "model", nlohmann::json::object(), &normalised);
+    run_trials(name, "model", nlohmann::json::object(), &normalised);
   ASSERT_EQ(normalised.size(), 250u);
   std::size_t within = 0;
   for (double z : normalised)

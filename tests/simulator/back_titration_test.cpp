@@ -35,14 +35,14 @@ constexpr const char* kBackTitration = R"({
   "electrode": {"metal": "zinc", "noise_mv": 0.0, "response_time_s": 0.0}
 })";
 
-struct Host {
+struct BackTitrationHost {
   drivers::VirtualClock clock;
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<drivers::DeviceLink> first_link, second_link, sensor_link;
   std::unique_ptr<drivers::BuretteClient> first, second;
   std::unique_ptr<drivers::PotentialSensorClient> sensor;
 
-  explicit Host(const Scenario& s) {
+  explicit BackTitrationHost(const Scenario& s) {
     bench = std::make_unique<SimulatedBench>(s, clock);
     first_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
     second_link =
@@ -57,7 +57,7 @@ struct Host {
 TEST(BackTitration, TheZincBreaksWhereTheExcessEdtaIsUsedUp) {
   auto s = parse_scenario(kBackTitration, "back");
   ASSERT_TRUE(s.has_value()) << s.error().message;
-  Host h(*s);
+  BackTitrationHost h(*s);
   auto who = h.second->identify();
   ASSERT_TRUE(who.has_value());
   EXPECT_EQ(who->serial_number, "virtual-burette-2");
@@ -115,7 +115,7 @@ TEST(BackTitration, EachRackVesselStartsWithoutZincAndTheLimitHoldsTheFirstReadi
               R"(, "rack": [{"position": 1}, {"position": 2, "metal_mol": 1e-4}])");
   auto s = parse_scenario(text, "back rack");
   ASSERT_TRUE(s.has_value()) << s.error().message;
-  Host h(*s);
+  BackTitrationHost h(*s);
   ASSERT_TRUE(h.second->dose(3.0, 20.0).has_value());  // into the scenario's own vessel
   drivers::DeviceLink changer_link(h.bench->sample_changer_line(), h.clock, "changer");
   drivers::SampleChangerClient changer(changer_link);

@@ -30,9 +30,9 @@ using namespace std::chrono_literals;
 
 /// Fast enough that doses take milliseconds, slow enough that the host's
 /// polls stay far inside the devices' host-silence stop.
-constexpr double kTimeScale = 20.0;
+constexpr double kDeviceServerTimeScale = 20.0;
 
-Scenario demo_scenario() {
+Scenario device_server_scenario() {
   auto s = parse_scenario(builtin_scenario("demo_calcium"), "demo");
   EXPECT_TRUE(s.has_value());
   return *s;
@@ -67,8 +67,8 @@ class StopFirst {
 };
 
 TEST(DeviceServer, ElectrodeOverTcpOnLocalhost) {
-  DeviceServer server(kTimeScale);
-  SimulatedBench bench(demo_scenario(), server.clock());
+  DeviceServer server(kDeviceServerTimeScale);
+  SimulatedBench bench(device_server_scenario(), server.clock());
   StopFirst stop_first(server);
   auto where = server.serve_on_tcp("electrode", bench.electrode());
   ASSERT_TRUE(where.has_value()) << where.error().message;
@@ -76,7 +76,7 @@ TEST(DeviceServer, ElectrodeOverTcpOnLocalhost) {
   server.run();
   auto line = open(*where);
   ASSERT_TRUE(line);
-  drivers::ScaledClock clock(kTimeScale);
+  drivers::ScaledClock clock(kDeviceServerTimeScale);
   drivers::DeviceLink link(*line, clock, "electrode", quick());
   drivers::PotentialSensorClient sensor(link);
   auto info = sensor.identify();
@@ -94,15 +94,15 @@ TEST(DeviceServer, ElectrodeOverTcpOnLocalhost) {
 }
 
 TEST(DeviceServer, ReconnectingOverTcpStopsADoseFirst) {
-  DeviceServer server(kTimeScale);
-  SimulatedBench bench(demo_scenario(), server.clock());
+  DeviceServer server(kDeviceServerTimeScale);
+  SimulatedBench bench(device_server_scenario(), server.clock());
   StopFirst stop_first(server);
   auto where = server.serve_on_tcp("burette", bench.burette());
   ASSERT_TRUE(where.has_value());
   server.run();
   auto line = open(*where);
   ASSERT_TRUE(line);
-  drivers::ScaledClock clock(kTimeScale);
+  drivers::ScaledClock clock(kDeviceServerTimeScale);
   auto options = quick();
   options.reconnect.max_attempts = 3;
   options.reconnect.first_delay = 100ms;  // clock time: 5 ms of real time at 20x
@@ -134,15 +134,15 @@ TEST(DeviceServer, ReconnectingOverTcpStopsADoseFirst) {
 }
 
 TEST(DeviceServer, AConverterThatRefusesEveryConnectionEndsInBoundedTime) {
-  DeviceServer server(kTimeScale);
-  SimulatedBench bench(demo_scenario(), server.clock());
+  DeviceServer server(kDeviceServerTimeScale);
+  SimulatedBench bench(device_server_scenario(), server.clock());
   StopFirst stop_first(server);
   auto where = server.serve_on_tcp("stirrer", bench.stirrer());
   ASSERT_TRUE(where.has_value());
   server.run();
   auto line = open(*where);
   ASSERT_TRUE(line);
-  drivers::ScaledClock clock(kTimeScale);
+  drivers::ScaledClock clock(kDeviceServerTimeScale);
   auto options = quick();
   options.reconnect.max_attempts = 3;
   drivers::DeviceLink link(*line, clock, "stirrer", options);
@@ -155,8 +155,8 @@ TEST(DeviceServer, AConverterThatRefusesEveryConnectionEndsInBoundedTime) {
 }
 
 TEST(DeviceServer, APulledLineInEveryRoleIsDisconnected) {
-  DeviceServer server(kTimeScale);
-  SimulatedBench bench(demo_scenario(), server.clock());
+  DeviceServer server(kDeviceServerTimeScale);
+  SimulatedBench bench(device_server_scenario(), server.clock());
   StopFirst stop_first(server);
   const std::vector<std::pair<std::string, VirtualDevice*>> devices = {
       {"burette", &bench.burette()},       {"electrode", &bench.electrode()},
@@ -170,7 +170,7 @@ TEST(DeviceServer, APulledLineInEveryRoleIsDisconnected) {
     ports.push_back(*where);
   }
   server.run();
-  drivers::ScaledClock clock(kTimeScale);
+  drivers::ScaledClock clock(kDeviceServerTimeScale);
   std::vector<std::unique_ptr<drivers::Transport>> lines;
   std::vector<std::unique_ptr<drivers::DeviceLink>> links;
   for (std::size_t i = 0; i < devices.size(); ++i) {
@@ -227,8 +227,8 @@ TEST(DeviceServer, APulledLineInEveryRoleIsDisconnected) {
 }
 
 TEST(DeviceServer, StreamedReadingsOnATimerThroughAProfile) {
-  DeviceServer server(kTimeScale);
-  Scenario scenario = demo_scenario();
+  DeviceServer server(kDeviceServerTimeScale);
+  Scenario scenario = device_server_scenario();
   SimulatedBench bench(scenario, server.clock());
   auto profile = drivers::profile::load_profile(std::string(VEQ_SOURCE_DIR) +
                                                 "/drivers/profiles/lantern_meter.profile");
@@ -240,7 +240,7 @@ TEST(DeviceServer, StreamedReadingsOnATimerThroughAProfile) {
   server.run();
   auto line = open(*where);
   ASSERT_TRUE(line);
-  drivers::ScaledClock clock(kTimeScale);
+  drivers::ScaledClock clock(kDeviceServerTimeScale);
   auto link = drivers::ProfileLink::open(*line, clock, "meter", *profile, quick());
   ASSERT_TRUE(link.has_value());
   drivers::PotentialSensorClient sensor(**link);
@@ -262,12 +262,12 @@ TEST(DeviceServer, SixteenInstrumentsDrivenAtOnce) {
   // as sixteen titrations would run.
   constexpr int kInstruments = 16;
   constexpr int kReadings = 25;
-  DeviceServer server(kTimeScale);
+  DeviceServer server(kDeviceServerTimeScale);
   std::vector<std::unique_ptr<SimulatedBench>> benches;
   StopFirst stop_first(server);
   std::vector<std::string> ports;
   for (int i = 0; i < kInstruments; ++i) {
-    Scenario s = demo_scenario();
+    Scenario s = device_server_scenario();
     s.seed = static_cast<std::uint64_t>(100 + i);
     benches.push_back(std::make_unique<SimulatedBench>(s, server.clock()));
     auto where =
@@ -288,7 +288,7 @@ TEST(DeviceServer, SixteenInstrumentsDrivenAtOnce) {
         failures[static_cast<std::size_t>(i)] = t.error().message;
         return;
       }
-      drivers::ScaledClock clock(kTimeScale);
+      drivers::ScaledClock clock(kDeviceServerTimeScale);
       drivers::LinkOptions options;
       options.reply_timeout = 2000ms;  // sixteen threads on two cores: be patient
       drivers::DeviceLink link(**t, clock, "meter", options);

@@ -22,7 +22,7 @@ namespace {
 
 using namespace std::chrono_literals;
 
-Scenario demo() {
+Scenario faults_replay_demo() {
   auto s = parse_scenario(builtin_scenario("demo_calcium"), "demo");
   EXPECT_TRUE(s.has_value());
   s->electrode.noise_mv = 0.0;
@@ -30,7 +30,7 @@ Scenario demo() {
   return *s;
 }
 
-struct Host {
+struct FaultsReplayHost {
   drivers::VirtualClock clock;
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link, balance_link, photometer_link;
@@ -39,7 +39,7 @@ struct Host {
   std::unique_ptr<drivers::BalanceClient> balance;
   std::unique_ptr<drivers::PhotometerClient> photometer;
 
-  explicit Host(const Scenario& s) {
+  explicit FaultsReplayHost(const Scenario& s) {
     bench = std::make_unique<SimulatedBench>(s, clock);
     burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
     sensor_link = std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "sensor");
@@ -97,7 +97,7 @@ void expect_same_prefix(const std::vector<double>& got, const std::vector<double
 
 /// Readings of a run without faults, and when each was asked for.
 std::vector<double> clean_run(std::vector<double>* read_at_s) {
-  Host h(demo());
+  FaultsReplayHost h(faults_replay_demo());
   Error none;
   return h.titrate(10, &none, read_at_s);
 }
@@ -123,9 +123,9 @@ TEST(Faults, ElectrodeLineFaultsAtSeveralMoments) {
   };
   for (const auto& [kind, expected] : cases) {
     for (double at : kMoments) {
-      Scenario s = demo();
+      Scenario s = faults_replay_demo();
       s.electrode_fault = plan(kind, at);
-      Host h(s);
+      FaultsReplayHost h(s);
       Error failure;
       const auto got = h.titrate(10, &failure);
       SCOPED_TRACE(std::string(fault_kind_name(kind)) + " after " + std::to_string(at) + " s");
@@ -139,11 +139,11 @@ TEST(Faults, ElectrodeLineFaultsAtSeveralMoments) {
 }
 
 TEST(Faults, SlowRepliesWithinTheTimeoutOnlyCostTime) {
-  Scenario s = demo();
+  Scenario s = faults_replay_demo();
   FaultPlan slow = plan(FaultKind::slow_replies, 0.0);
   slow.delay_ms = 300.0;  // under the link's 2 s reply timeout
   s.electrode_fault = slow;
-  Host h(s);
+  FaultsReplayHost h(s);
   const auto before = h.clock.now_s();
   auto r = h.sensor->read();
   ASSERT_TRUE(r.has_value()) << r.error().message;
@@ -151,7 +151,7 @@ TEST(Faults, SlowRepliesWithinTheTimeoutOnlyCostTime) {
 }
 
 TEST(Faults, SwitchedAtRunTimeAndOffAgain) {
-  Host h(demo());
+  FaultsReplayHost h(faults_replay_demo());
   ASSERT_TRUE(h.sensor->read().has_value());
   ASSERT_TRUE(h.bench->set_fault("electrode", plan(FaultKind::silence, h.clock.now_s())));
   auto silent = h.sensor->read();
@@ -181,9 +181,9 @@ TEST(Faults, DeadElectrodeFreezesAndSpikesComeNowAndThen) {
   std::vector<double> times;
   const auto clean = clean_run(&times);
   for (double at : kMoments) {
-    Scenario s = demo();
+    Scenario s = faults_replay_demo();
     s.electrode_fault = plan(FaultKind::dead, at);
-    Host h(s);
+    FaultsReplayHost h(s);
     Error failure;
     const auto got = h.titrate(10, &failure);
     ASSERT_EQ(got.size(), 10u) << failure.message;
@@ -194,11 +194,11 @@ TEST(Faults, DeadElectrodeFreezesAndSpikesComeNowAndThen) {
       EXPECT_NEAR(got[i], clean[std::min(i, first_dead)], 1e-9) << "reading " << i;
     }
   }
-  Scenario s = demo();
+  Scenario s = faults_replay_demo();
   FaultPlan spikes = plan(FaultKind::spikes, 0.0);
   spikes.probability = 0.3;
   s.electrode_fault = spikes;
-  Host h(s);
+  FaultsReplayHost h(s);
   int hit = 0;
   for (int i = 0; i < 200; ++i) {
     auto r = h.sensor->read();
@@ -216,9 +216,9 @@ TEST(Faults, DeadElectrodeFreezesAndSpikesComeNowAndThen) {
 TEST(Faults, BuretteStallAndEmptyAtSeveralMoments) {
   for (MotorFaultKind kind : {MotorFaultKind::stalled, MotorFaultKind::empty}) {
     for (double at : {0.5, 5.2, 11.0}) {
-      Scenario s = demo();
+      Scenario s = faults_replay_demo();
       s.burette.motor_fault = MotorFault{kind, at};
-      Host h(s);
+      FaultsReplayHost h(s);
       Error failure;
       const auto got = h.titrate(10, &failure);
       SCOPED_TRACE(std::string(motor_fault_kind_name(kind)) + " at " + std::to_string(at));
@@ -234,7 +234,7 @@ TEST(Faults, BuretteStallAndEmptyAtSeveralMoments) {
     }
   }
   // At run time, from now.
-  Host h(demo());
+  FaultsReplayHost h(faults_replay_demo());
   ASSERT_TRUE(h.burette->dose(0.5, 20.0).has_value());
   h.bench->burette().set_motor_fault(MotorFault{MotorFaultKind::stalled, h.clock.now_s()});
   auto stalled = h.burette->dose(0.5, 20.0);
@@ -243,9 +243,9 @@ TEST(Faults, BuretteStallAndEmptyAtSeveralMoments) {
 }
 
 TEST(Faults, PhotometerSensorFaultsAtRunTime) {
-  Scenario s = demo();
+  Scenario s = faults_replay_demo();
   s.photometer.noise_absorbance = 0.0;
-  Host h(s);
+  FaultsReplayHost h(s);
   ASSERT_TRUE(h.photometer->zero().has_value());
   ASSERT_TRUE(h.burette->dose(2.0, 20.0).has_value());
   auto live = h.photometer->read();
@@ -272,10 +272,10 @@ TEST(Faults, PhotometerSensorFaultsAtRunTime) {
 }
 
 TEST(Faults, BalanceNeverStable) {
-  Scenario s = demo();
+  Scenario s = faults_replay_demo();
   s.balance.settle_time_s = 0.0;
   s.balance_fault = plan(FaultKind::never_stable, 0.0);
-  Host h(s);
+  FaultsReplayHost h(s);
   auto r = h.balance->read();
   ASSERT_TRUE(r.has_value());
   EXPECT_FALSE(r->stable);
@@ -316,9 +316,9 @@ TEST(Replay, ReproducesTheStoredCurveAndInterpolates) {
   auto curve = parse_replay_csv(
       "volume_ml,potential_mv\n0,100.0\n0.5,101.5\n1.0,104.0\n1.5,130.0\n2.0,160.25\n", "run.csv");
   ASSERT_TRUE(curve.has_value()) << curve.error().message;
-  Scenario s = demo();
+  Scenario s = faults_replay_demo();
   s.replay = *curve;
-  Host h(s);
+  FaultsReplayHost h(s);
   auto r0 = h.sensor->read();
   ASSERT_TRUE(r0.has_value());
   EXPECT_EQ(r0->potential_mv, 100.0);
@@ -341,9 +341,9 @@ TEST(Replay, OutsideTheCurveCanBeAFault) {
   ASSERT_TRUE(curve.has_value());
   curve->role = "photometer";
   curve->outside = ReplayOutside::fault;
-  Scenario s = demo();
+  Scenario s = faults_replay_demo();
   s.replay = *curve;
-  Host h(s);
+  FaultsReplayHost h(s);
   ASSERT_TRUE(h.burette->dose(0.5, 20.0).has_value());
   auto inside = h.photometer->read();
   ASSERT_TRUE(inside.has_value());

@@ -23,7 +23,7 @@
 namespace veq::simulator {
 namespace {
 
-Scenario demo() {
+Scenario physics_truths_demo() {
   auto s = parse_scenario(builtin_scenario("demo_calcium"), "demo");
   EXPECT_TRUE(s.has_value());
   return *s;
@@ -39,7 +39,7 @@ Scenario general(const std::string& chemistry_json, const std::string& electrode
   return s ? *s : Scenario{};
 }
 
-struct Host {
+struct PhysicsTruthsHost {
   drivers::VirtualClock clock;
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link, doser_link, balance_link,
@@ -50,7 +50,7 @@ struct Host {
   std::unique_ptr<drivers::BalanceClient> balance;
   std::unique_ptr<drivers::PhotometerClient> photometer;
 
-  explicit Host(const Scenario& s) {
+  explicit PhysicsTruthsHost(const Scenario& s) {
     bench = std::make_unique<SimulatedBench>(s, clock);
     burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
     sensor_link = std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "sensor");
@@ -85,7 +85,7 @@ double steepest_ml(F&& f, double from_ml, double to_ml, double step_ml) {
 // ---- hidden truths ----
 
 TEST(Truths, ABlankInTheVesselIsTitratedWithTheSample) {
-  Scenario s = demo();
+  Scenario s = physics_truths_demo();
   s.sample.blank_metal_mol = 1.0e-5;  // 2 % of the sample's 5.0e-4 mol (invented)
   s.electrode.noise_mv = 0.0;
   drivers::VirtualClock clock;
@@ -103,10 +103,10 @@ TEST(Truths, ABlankInTheVesselIsTitratedWithTheSample) {
 }
 
 TEST(Truths, DosedBufferCarriesMetalIntoTheVessel) {
-  Scenario s = demo();
+  Scenario s = physics_truths_demo();
   s.auxiliary_doser.buffer.metal_conc_mol_per_l = 2.0e-3;  // invented trace of calcium
   s.auxiliary_doser.systematic_error_percent = 1.0;
-  Host h(s);
+  PhysicsTruthsHost h(s);
   ASSERT_TRUE(h.doser->add(drivers::Reagent::buffer, 5.0, 20.0).has_value());
   const BenchTruths t = h.bench->truths();
   // 5 mL asked, 5.05 mL truly pumped (1 % hidden error), times 2e-3 mol/L.
@@ -115,13 +115,13 @@ TEST(Truths, DosedBufferCarriesMetalIntoTheVessel) {
 }
 
 TEST(Truths, BalanceOffsetAndSensitivityShowUntilTared) {
-  Scenario s = demo();
+  Scenario s = physics_truths_demo();
   s.balance.noise_g = 0.0;
   s.balance.settle_time_s = 0.0;
   s.balance.offset_g = 0.0123;
   s.balance.sensitivity_error_percent = 0.1;
   s.balance.load_g = 50.0;
-  Host h(s);
+  PhysicsTruthsHost h(s);
   auto untared = h.balance->read();
   ASSERT_TRUE(untared.has_value());
   // 50 g x 1.001 + 0.0123 g, to the readability of 0.1 mg.
@@ -198,7 +198,7 @@ TEST(Physics, ElectrodeMatchesThePredictedCurveWithNoiseOff) {
 
 TEST(Physics, ElectrodeOverTheProtocolReadsTheEngine) {
   Scenario s = general(kCalcium, R"({"noise_mv": 0.0, "response_time_s": 0.0})");
-  Host h(s);
+  PhysicsTruthsHost h(s);
   for (double dose : {1.0, 2.0, 1.9, 0.2}) {
     ASSERT_TRUE(h.burette->dose(dose, 20.0).has_value());
     auto r = h.sensor->read();
@@ -214,8 +214,8 @@ TEST(Physics, TemperatureEntersTheNernstSlope) {
   // section 15-1; 37 degC value computed from CODATA R and F).
   EXPECT_NEAR(nernst_slope_mv(25.0), 59.16, 0.005);
   EXPECT_NEAR(nernst_slope_mv(37.0), 61.54, 0.005);
-  Scenario cold = demo();
-  Scenario warm = demo();
+  Scenario cold = physics_truths_demo();
+  Scenario warm = physics_truths_demo();
   cold.electrode.temperature_c = 25.0;
   warm.electrode.temperature_c = 37.0;
   drivers::VirtualClock clock;
@@ -297,7 +297,7 @@ TEST(Physics, TheIndicatorHoldsSomeMetal) {
       general(R"({"sample_volume_ml": 50.0, "metals": [{"name": "Mg", "conc_mol_per_l": 0.002}],
       "ph": 10.0, "titrant": {"name": "EDTA", "conc_mol_per_l": 0.05},
       "indicator": {"name": "Eriochrome Black T", "conc_mol_per_l": 5e-5}})");
-  Host h(s);
+  PhysicsTruthsHost h(s);
   // Before the titrant the metal is in 40-fold excess over the indicator:
   // practically all 2.5e-6 mol of indicator is bound to it.
   const double bound0 = h.bench->truths().indicator_bound_metal_mol;
@@ -317,7 +317,7 @@ TEST(Physics, BaseFromTheDoserMovesThePh) {
       "ligands": [{"name": "ammonia", "total_mol_per_l": 0.05, "protons_per_formula": 1}],
       "titrant": {"name": "EDTA", "conc_mol_per_l": 0.05}})");
   s.auxiliary_doser.water.strong_acid_mol_per_l = -0.5;  // the "water" bottle holds 0.5 M NaOH
-  Host h(s);
+  PhysicsTruthsHost h(s);
   const double ph0 = h.bench->truths().vessel_ph;
   EXPECT_NEAR(ph0, 9.24, 0.1);
   ASSERT_TRUE(h.doser->add(drivers::Reagent::water, 2.0, 20.0).has_value());
@@ -329,11 +329,11 @@ TEST(Physics, BaseFromTheDoserMovesThePh) {
 // ---- mixing and the photometer ----
 
 TEST(Physics, MixingDelaysADoseAtTheElectrode) {
-  Scenario s = demo();
+  Scenario s = physics_truths_demo();
   s.electrode.noise_mv = 0.0;
   s.electrode.response_time_s = 0.0;
   s.electrode.mixing_time_s = 3.0;
-  Host h(s);
+  PhysicsTruthsHost h(s);
   ASSERT_TRUE(h.sensor->read().has_value());
   // 4.5 mL at 40 mL/min: the mixed volume trails the dose by about
   // rate x tau = 2 mL when the motor stops.
@@ -356,7 +356,7 @@ TEST(Physics, StrayLightBendsBeerLambert) {
   // -log10(0.11 / 1.01) = 0.96293 (computed by hand).
   EXPECT_NEAR(with_stray_light(1.0, 0.01), 0.962928, 1e-6);
   EXPECT_NEAR(with_stray_light(0.3, 0.0), 0.3, 1e-12);
-  Scenario s = demo();
+  Scenario s = physics_truths_demo();
   s.photometer.noise_absorbance = 0.0;
   s.photometer.stray_light_fraction = 0.02;
   drivers::VirtualClock clock;
@@ -386,7 +386,7 @@ TEST(Physics, PhotometerMatchesThePredictedIndicatorCurve) {
   sample->curve.points = 31;
   auto predicted = chemistry::predict(*library, *sample);
   ASSERT_TRUE(predicted.has_value()) << predicted.error().message;
-  Host h(s);
+  PhysicsTruthsHost h(s);
   ASSERT_TRUE(h.photometer->zero().has_value());  // against the sample before titrant
   const double a0 = predicted->curve.front().signal;
   double last_ml = 0.0;

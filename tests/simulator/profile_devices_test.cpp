@@ -44,7 +44,7 @@ Scenario stonebridge_scenario() {
 }
 
 /// A burette and a meter reached either natively or through their profiles.
-struct Host {
+struct ProfileDevicesHost {
   drivers::VirtualClock clock;
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<ProfileSpeakingDevice> burette_dialect, meter_dialect;
@@ -53,7 +53,7 @@ struct Host {
   std::unique_ptr<drivers::BuretteClient> burette;
   std::unique_ptr<drivers::PotentialSensorClient> meter;
 
-  Host(const Scenario& scenario, bool profiles) {
+  ProfileDevicesHost(const Scenario& scenario, bool profiles) {
     bench = std::make_unique<SimulatedBench>(scenario, clock);
     if (!profiles) {
       burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
@@ -82,7 +82,7 @@ struct Host {
 };
 
 TEST(StonebridgeOverItsProfile, DosesFillsTurnsTheValveAndStops) {
-  Host host(stonebridge_scenario(), true);
+  ProfileDevicesHost host(stonebridge_scenario(), true);
   std::ostringstream traffic;
   auto log = std::make_shared<drivers::TrafficLog>(traffic);
   drivers::LoggingTransport logged(host.burette_line(), log);
@@ -128,7 +128,7 @@ TEST(StonebridgeOverItsProfile, DosesFillsTurnsTheValveAndStops) {
 }
 
 /// The error of one step against a native and a profile host, to compare.
-using Step = std::function<std::optional<Error>(Host&)>;
+using Step = std::function<std::optional<Error>(ProfileDevicesHost&)>;
 
 template <typename R>
 std::optional<Error> error_of(const Result<R>& r) {
@@ -141,7 +141,7 @@ void expect_same_errors(const Scenario& scenario, const Step& step, ErrorKind ki
                         const std::string& says) {
   for (bool profiles : {false, true}) {
     SCOPED_TRACE(profiles ? "over the profile" : "native");
-    Host host(scenario, profiles);
+    ProfileDevicesHost host(scenario, profiles);
     auto e = step(host);
     ASSERT_TRUE(e.has_value());
     EXPECT_EQ(e->kind, kind) << e->describe();
@@ -153,11 +153,11 @@ TEST(OverAProfile, TheSameErrorsAsNative) {
   const Scenario s = stonebridge_scenario();
   // Refusals by the device: reasons mapped back to veq's words.
   expect_same_errors(
-      s, [](Host& h) { return error_of(h.burette->start_dose(12.0, 10.0)); },
+      s, [](ProfileDevicesHost& h) { return error_of(h.burette->start_dose(12.0, 10.0)); },
       ErrorKind::device_refused, "over_limit");
   expect_same_errors(
       s,
-      [](Host& h) {
+      [](ProfileDevicesHost& h) {
         (void)h.burette->start_dose(1.0, 10.0);
         return error_of(h.burette->start_dose(1.0, 10.0));
       },
@@ -169,14 +169,14 @@ TEST(OverAProfile, TheSameErrorsAsNative) {
         std::tuple{FaultKind::partial_line, ErrorKind::timeout, "unfinished line"}}) {
     expect_same_errors(
         s,
-        [fault = fault](Host& h) {
+        [fault = fault](ProfileDevicesHost& h) {
           h.bench->burette().set_fault({fault, 0.0});
           return error_of(h.burette->status());
         },
         kind, says);
     expect_same_errors(
         s,
-        [fault = fault](Host& h) {
+        [fault = fault](ProfileDevicesHost& h) {
           h.bench->electrode().set_fault({fault, 0.0});
           return error_of(h.meter->read());
         },
@@ -184,7 +184,7 @@ TEST(OverAProfile, TheSameErrorsAsNative) {
   }
   expect_same_errors(
       s,
-      [](Host& h) {
+      [](ProfileDevicesHost& h) {
         h.burette_line().close();
         return error_of(h.burette->status());
       },
@@ -194,7 +194,7 @@ TEST(OverAProfile, TheSameErrorsAsNative) {
   stall.burette.motor_fault = {MotorFaultKind::stalled, 1.0};
   expect_same_errors(
       stall,
-      [](Host& h) {
+      [](ProfileDevicesHost& h) {
         auto r = error_of(h.burette->dose(1.0, 10.0));
         EXPECT_TRUE(h.burette->halted());
         return r;
@@ -203,7 +203,7 @@ TEST(OverAProfile, TheSameErrorsAsNative) {
   // An operation the instrument does not have.
   Scenario no_valve = s;
   no_valve.burette.ports = 0;
-  Host native(no_valve, false);
+  ProfileDevicesHost native(no_valve, false);
   auto refused = native.burette->select_port(1);
   ASSERT_FALSE(refused.has_value());
   EXPECT_EQ(refused.error().kind, ErrorKind::device_refused);
@@ -211,7 +211,7 @@ TEST(OverAProfile, TheSameErrorsAsNative) {
 }
 
 TEST(OverAProfile, AnUnmappedOperationIsRefusedLikeAnUnknownCommand) {
-  Host host(stonebridge_scenario(), true);
+  ProfileDevicesHost host(stonebridge_scenario(), true);
   drivers::protocol::Message m;
   m.word = "calibrate";
   auto r = host.burette_link->call(m);
@@ -223,7 +223,7 @@ TEST(OverAProfile, AnUnmappedOperationIsRefusedLikeAnUnknownCommand) {
 TEST(LanternOverItsProfile, EchoedCommandsPolledAndStreamedReadings) {
   Scenario s = stonebridge_scenario();
   s.electrode.noise_mv = 0.0;
-  Host host(s, true);
+  ProfileDevicesHost host(s, true);
   auto info = host.meter->identify();
   ASSERT_TRUE(info.has_value()) << info.error().message;
   EXPECT_EQ(info->model, "Lantern LM-2 millivolt meter");
@@ -253,7 +253,7 @@ TEST(OverProfiles, AStepwiseTitrationFindsTheEquivalencePoint) {
   // 10.000 mL (0.02000 mol/L x 25.0 mL / 0.0500 mol/L, demo_calcium.json).
   Scenario s = stonebridge_scenario();
   s.electrode.response_time_s = 0.0;
-  Host host(s, true);
+  ProfileDevicesHost host(s, true);
   ASSERT_TRUE(host.burette->identify().has_value());
   ASSERT_TRUE(host.burette->arm_host_silence_stop().has_value());
   std::vector<double> volume{0.0}, potential{host.meter->read()->potential_mv};

@@ -33,17 +33,17 @@ using namespace std::chrono_literals;
 
 /// Fast enough that a dose takes tens of milliseconds, slow enough that the
 /// host's status polls stay far inside the burette's host-silence stop.
-constexpr double kTimeScale = 50.0;
+constexpr double kPseudoTerminalBenchTimeScale = 50.0;
 
-Scenario demo_scenario() {
+Scenario pseudo_terminal_bench_scenario() {
   auto s = parse_scenario(builtin_scenario("demo_calcium"), "demo");
   EXPECT_TRUE(s.has_value());
   return *s;
 }
 
 /// A host talking to one served bench, as `veq run` would.
-struct Host {
-  drivers::ScaledClock clock{kTimeScale};
+struct PseudoTerminalBenchHost {
+  drivers::ScaledClock clock{kPseudoTerminalBenchTimeScale};
   std::unique_ptr<drivers::Transport> burette_line, electrode_line;
   std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link;
   std::unique_ptr<drivers::BuretteClient> burette;
@@ -70,34 +70,34 @@ struct Host {
 
 std::unique_ptr<PseudoTerminalBench> start_bench(const Scenario& scenario) {
   PseudoTerminalBenchOptions options;
-  options.time_scale = kTimeScale;
+  options.time_scale = kPseudoTerminalBenchTimeScale;
   auto bench = PseudoTerminalBench::start(scenario, options);
   EXPECT_TRUE(bench.has_value()) << bench.error().message;
   return bench ? std::move(bench).value() : nullptr;
 }
 
 TEST(PseudoTerminalBench, ServesTwoDistinctPorts) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
   EXPECT_EQ(bench->burette_port().rfind("/dev/pts/", 0), 0u) << bench->burette_port();
   EXPECT_EQ(bench->electrode_port().rfind("/dev/pts/", 0), 0u) << bench->electrode_port();
   EXPECT_NE(bench->burette_port(), bench->electrode_port());
   EXPECT_EQ(bench->burette_connection(), "serial:" + bench->burette_port());
-  EXPECT_EQ(bench->time_scale(), kTimeScale);
+  EXPECT_EQ(bench->time_scale(), kPseudoTerminalBenchTimeScale);
 }
 
 TEST(PseudoTerminalBench, RefusesATimeScaleThatIsNotPositive) {
   PseudoTerminalBenchOptions options;
   options.time_scale = 0.0;
-  auto bench = PseudoTerminalBench::start(demo_scenario(), options);
+  auto bench = PseudoTerminalBench::start(pseudo_terminal_bench_scenario(), options);
   ASSERT_FALSE(bench.has_value());
   EXPECT_EQ(bench.error().kind, ErrorKind::invalid_input);
 }
 
 TEST(PseudoTerminalBench, DevicesAnswerThroughTheRealClientsOverSerialPorts) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
-  Host host;
+  PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
 
   auto info = host.burette->identify();
@@ -136,9 +136,9 @@ TEST(PseudoTerminalBench, DevicesAnswerThroughTheRealClientsOverSerialPorts) {
 }
 
 TEST(PseudoTerminalBench, SilentElectrodeIsATimeoutAndTheLineRecovers) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
-  Host host;
+  PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench, 150ms));
   bench->set_electrode_fault({FaultKind::silence, 0.0});
   const auto start = std::chrono::steady_clock::now();
@@ -161,9 +161,9 @@ TEST(PseudoTerminalBench, SilentElectrodeIsATimeoutAndTheLineRecovers) {
 }
 
 TEST(PseudoTerminalBench, GarbageOnTheLineIsGarbledNeverANumber) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
-  Host host;
+  PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
   bench->set_electrode_fault({FaultKind::garbage, 0.0});
   // Noise bytes are random: each reply must be refused, whatever they are.
@@ -178,9 +178,9 @@ TEST(PseudoTerminalBench, GarbageOnTheLineIsGarbledNeverANumber) {
 }
 
 TEST(PseudoTerminalBench, PartialLineIsATimeoutThatSaysSoAndTheLineRecovers) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
-  Host host;
+  PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench, 150ms));
   bench->set_burette_fault({FaultKind::partial_line, 0.0});
   auto status = host.burette->status();
@@ -197,9 +197,9 @@ TEST(PseudoTerminalBench, PartialLineIsATimeoutThatSaysSoAndTheLineRecovers) {
 }
 
 TEST(PseudoTerminalBench, TheElectrodeStreamsOverItsPort) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
-  Host host;
+  PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
   // 100 ms of device time is 2 ms of real time at 50x.
   ASSERT_TRUE(host.sensor->start_streaming(100ms).has_value());
@@ -213,9 +213,9 @@ TEST(PseudoTerminalBench, TheElectrodeStreamsOverItsPort) {
 }
 
 TEST(PseudoTerminalBench, PulledCableIsDisconnected) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
-  Host host;
+  PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
   ASSERT_TRUE(host.burette->status().has_value());
   bench->disconnect();
@@ -228,10 +228,10 @@ TEST(PseudoTerminalBench, PulledCableIsDisconnected) {
 }
 
 TEST(PseudoTerminalBench, AHostMayCloseItsPortAndOpenItAgain) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
   for (int session = 0; session < 3; ++session) {
-    Host host;
+    PseudoTerminalBenchHost host;
     ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
     auto info = host.burette->identify();
     ASSERT_TRUE(info.has_value()) << "session " << session << ": " << info.error().message;
@@ -239,7 +239,7 @@ TEST(PseudoTerminalBench, AHostMayCloseItsPortAndOpenItAgain) {
 }
 
 TEST(PseudoTerminalBench, StopIsIdempotentAndClosesThePorts) {
-  auto bench = start_bench(demo_scenario());
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
   ASSERT_TRUE(bench);
   const std::string port = bench->burette_port();
   bench->stop();

@@ -47,7 +47,7 @@ Scenario rack_scenario() {
   return s ? *s : Scenario{};
 }
 
-struct Host {
+struct RackHost {
   drivers::VirtualClock clock;
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link, balance_link, changer_link;
@@ -56,7 +56,7 @@ struct Host {
   std::unique_ptr<drivers::BalanceClient> balance;
   std::unique_ptr<drivers::SampleChangerClient> changer;
 
-  explicit Host(const Scenario& s) {
+  explicit RackHost(const Scenario& s) {
     bench = std::make_unique<SimulatedBench>(s, clock);
     burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
     sensor_link = std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "sensor");
@@ -79,7 +79,7 @@ struct Host {
 };
 
 /// Volume of the steepest fall of the noise-free potential (mV) on a grid.
-double steepest_ml(const SimulatedBench& bench, double from_ml, double to_ml, double step_ml) {
+double rack_steepest_ml(const SimulatedBench& bench, double from_ml, double to_ml, double step_ml) {
   auto& e = const_cast<SimulatedBench&>(bench).electrode();
   double best = from_ml;
   double best_slope = -1.0;
@@ -95,7 +95,7 @@ double steepest_ml(const SimulatedBench& bench, double from_ml, double to_ml, do
 }
 
 TEST(Rack, EachLoweredPositionGivesItsOwnCurve) {
-  Host h(rack_scenario());
+  RackHost h(rack_scenario());
   struct Expected {
     int position;
     double equivalence_ml;  // stoichiometry 1:1: metal (+ blank) mol / 0.05 mol/L
@@ -115,14 +115,14 @@ TEST(Rack, EachLoweredPositionGivesItsOwnCurve) {
     // The electrode breaks at the vessel's equivalence: a 0.005 mL grid and
     // the 1:1 inflection, which lies within 1e-4 mL of the equivalence for
     // K' = 10^10.2 (the closed form's asymmetry at these concentrations).
-    EXPECT_NEAR(steepest_ml(*h.bench, c.equivalence_ml - 1.0, c.equivalence_ml + 1.0, 0.005),
+    EXPECT_NEAR(rack_steepest_ml(*h.bench, c.equivalence_ml - 1.0, c.equivalence_ml + 1.0, 0.005),
                 c.equivalence_ml, 0.006)
         << "position " << c.position;
   }
 }
 
 TEST(Rack, TitrantAndSensorsCountFromTheLowering) {
-  Host h(rack_scenario());
+  RackHost h(rack_scenario());
   h.dip_into(1);
   ASSERT_TRUE(h.burette->dose(4.0, 20.0).has_value());
   EXPECT_NEAR(h.bench->truths().titrant_delivered_ml, 4.0, 1e-9);
@@ -147,7 +147,7 @@ TEST(Rack, TitrantAndSensorsCountFromTheLowering) {
 }
 
 TEST(Rack, StandardPositionsHoldMassTimesPurityOverMolarMass) {
-  Host h(rack_scenario());
+  RackHost h(rack_scenario());
   const PositionTruths t = h.bench->position_truths(3);
   EXPECT_TRUE(t.in_rack);
   EXPECT_TRUE(t.standard);
@@ -169,7 +169,7 @@ TEST(Rack, StandardPositionsHoldMassTimesPurityOverMolarMass) {
 }
 
 TEST(Rack, AnOnBalanceVesselWeighsWhatTheBuretteDelivers) {
-  Host h(rack_scenario());
+  RackHost h(rack_scenario());
   h.dip_into(5);
   ASSERT_TRUE(h.balance->tare().has_value());
   ASSERT_TRUE(h.burette->dose(10.0, 20.0).has_value());
@@ -188,7 +188,7 @@ TEST(Rack, AnOnBalanceVesselWeighsWhatTheBuretteDelivers) {
 }
 
 TEST(Rack, ABlockedPositionStillStopsTheHeadShort) {
-  Host h(rack_scenario());
+  RackHost h(rack_scenario());
   auto blocked = h.changer->move_to(8);  // position 7 is in the way
   ASSERT_FALSE(blocked.has_value());
   ASSERT_TRUE(h.changer->stop().has_value());
@@ -201,7 +201,7 @@ TEST(Rack, WithoutARackLoweringChangesNothing) {
   auto s = parse_scenario(kRack, "rack");
   ASSERT_TRUE(s.has_value());
   s->rack.clear();
-  Host h(*s);
+  RackHost h(*s);
   ASSERT_TRUE(h.burette->dose(2.0, 20.0).has_value());
   h.dip_into(3);
   EXPECT_EQ(h.bench->position(), 0);

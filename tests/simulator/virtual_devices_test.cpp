@@ -13,7 +13,7 @@
 namespace veq::simulator {
 namespace {
 
-Scenario demo_scenario() {
+Scenario virtual_devices_scenario() {
   auto s = parse_scenario(builtin_scenario("demo_calcium"), "demo");
   EXPECT_TRUE(s.has_value());
   return *s;
@@ -21,7 +21,7 @@ Scenario demo_scenario() {
 
 struct Bench : ::testing::Test {
   drivers::VirtualClock clock;
-  Scenario scenario = demo_scenario();
+  Scenario scenario = virtual_devices_scenario();
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<drivers::DeviceLink> burette_link, sensor_link;
   std::unique_ptr<drivers::BuretteClient> burette;
