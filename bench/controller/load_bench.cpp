@@ -1,9 +1,11 @@
 // Load: many instruments running series at once in one process, each on its
-// own thread with its own simulated rack (own virtual clock, own seed) and
-// its own connection to ONE shared SQLite file, as a lab's instruments share
-// the lab's file. Each works through the demo's Tuesday rack (controller/cli/
-// demo_data.hpp, without the injected fault) again and again until its
-// virtual clock has passed the simulated hours asked for.
+// own thread with its own simulated rack (own virtual clock, own seed),
+// writing to ONE shared SQLite file, as a lab's instruments share the lab's
+// file: through one connection shared by all (the store serialises its
+// calls: one writer), or with "each" as the fourth argument one connection
+// per instrument (SQLite's file lock and busy timeout between them). Each works through the demo's
+// Tuesday rack (controller/cli/ demo_data.hpp, without the injected fault) again and again until
+// its virtual clock has passed the simulated hours asked for.
 //
 // Measures wall time, series, titration runs and points stored, the peak
 // resident memory (getrusage ru_maxrss) and the resident memory after each
@@ -18,6 +20,7 @@
 //
 //   build/bin/veq_load_bench [instruments, default 16] [simulated hours, default 24]
 //                            [database file, default veq-load.sqlite (replaced)]
+//                            [shared | each, default shared]
 #include <sqlite3.h>
 #include <sys/resource.h>
 #include <unistd.h>
@@ -172,7 +175,7 @@ struct Instrument {
   int index = 0;
   std::uint64_t seed = 0;
   LabTexts texts;
-  std::unique_ptr<store::SqliteStore> store;
+  store::SqliteStore* store = nullptr;
   std::vector<Round> rounds;
   double virtual_h = 0.0;
   std::string error;
@@ -314,8 +317,11 @@ int main(int argc, char** argv) {
   const int count = argc > 1 ? std::atoi(argv[1]) : 16;
   const double hours = argc > 2 ? std::atof(argv[2]) : 24.0;
   const std::string path = argc > 3 ? argv[3] : "veq-load.sqlite";
-  if (count < 1 || hours < 0.0) {
-    std::fprintf(stderr, "usage: veq_load_bench [instruments] [simulated hours] [database]\n");
+  const std::string connections = argc > 4 ? argv[4] : "shared";
+  if (count < 1 || hours < 0.0 || (connections != "shared" && connections != "each")) {
+    std::fprintf(stderr,
+                 "usage: veq_load_bench [instruments] [simulated hours] [database] "
+                 "[shared|each]\n");
     return 2;
   }
   if (sqlite3_config(SQLITE_CONFIG_LOG, sqlite_log, nullptr) != SQLITE_OK) {
@@ -324,22 +330,22 @@ int main(int argc, char** argv) {
   }
   remove_database(path);
 
-  // Every connection is opened before any series starts: opening marks the
-  // runs and series still "running" in the file as interrupted (a crash
-  // check meant for one process), so a connection opened while another
-  // instrument runs would mark that instrument's run interrupted.
+  std::vector<std::unique_ptr<store::SqliteStore>> opened_stores;
   std::vector<Instrument> instruments(static_cast<std::size_t>(count));
   for (int i = 0; i < count; ++i) {
     auto& in = instruments[static_cast<std::size_t>(i)];
     in.index = i;
     in.seed = 20261208 + 7919 * static_cast<std::uint64_t>(i);
     in.texts = lab_texts(i);
-    auto opened = store::SqliteStore::open(path);
-    if (!opened) {
-      std::fprintf(stderr, "cannot open %s: %s\n", path.c_str(), opened.error().message.c_str());
-      return 2;
+    if (opened_stores.empty() || connections == "each") {
+      auto opened = store::SqliteStore::open(path);
+      if (!opened) {
+        std::fprintf(stderr, "cannot open %s: %s\n", path.c_str(), opened.error().message.c_str());
+        return 2;
+      }
+      opened_stores.push_back(std::move(*opened));
     }
-    in.store = std::move(*opened);
+    in.store = opened_stores.back().get();
   }
   const long rss_before_kib = rss_kib();
 
@@ -389,7 +395,8 @@ int main(int argc, char** argv) {
     }
   }
   for (auto& in : instruments)
-    in.store.reset();
+    in.store = nullptr;
+  opened_stores.clear();
   const std::int64_t points_stored = count_rows(path, "SELECT COUNT(*) FROM points");
   const std::int64_t runs_stored = count_rows(path, "SELECT COUNT(*) FROM runs");
   const std::int64_t runs_not_finished =
@@ -422,7 +429,7 @@ int main(int argc, char** argv) {
       problems.push_back("cannot open " + alone_path + ": " + opened.error().message);
       continue;
     }
-    alone.store = std::move(*opened);
+    alone.store = opened->get();
     work(alone, 0.0);
     std::string why;
     if (!alone.error.empty())
@@ -438,7 +445,8 @@ int main(int argc, char** argv) {
       std::chrono::duration<double>(std::chrono::steady_clock::now() - alone_start).count();
 
   std::printf("| figure | value |\n|---|---|\n");
-  std::printf("| instruments (threads, one connection each, one file) | %d |\n", count);
+  std::printf("| instruments (threads on one file; connections) | %d (%s) |\n", count,
+              connections == "shared" ? "one shared" : "one each");
   std::printf("| simulated hours asked / least reached | %.1f / %.1f |\n", hours, least_h);
   std::printf("| series (completed) | %" PRId64 " (%" PRId64 ") |\n", series_count, completed);
   std::printf("| runs stored (listed by the series' entries) | %" PRId64 " (%" PRId64 ") |\n",

@@ -97,6 +97,7 @@ veq::Result<audit::AuditRecord> AuditTrail::append_locked(
 veq::Result<audit::AuditRecord> AuditTrail::append(
     const std::string& user, const std::string& action, const std::string& subject,
     const std::string& old_value, const std::string& new_value, const std::string& reason) {
+  const auto serialized = store_->serialize();
   if (auto r = exec("BEGIN IMMEDIATE"); !r)
     return r.error();
   auto record = append_locked(user, action, subject, old_value, new_value, reason);
@@ -113,6 +114,7 @@ veq::Result<audit::AuditRecord> AuditTrail::append(
 
 veq::Result<audit::Role> AuditTrail::authenticate(const std::string& name,
                                                   const std::string& password) {
+  const auto serialized = store_->serialize();
   Statement s(store_->db_, "SELECT role, password_hash FROM users WHERE name = ?1 AND active = 1");
   s.bind(1, name);
   const int rc = s.step();
@@ -132,6 +134,7 @@ veq::Result<audit::Role> AuditTrail::authenticate(const std::string& name,
 veq::Result<void> AuditTrail::add_user(const std::string& by, const std::string& by_password,
                                        const std::string& name, audit::Role role,
                                        const std::string& password) {
+  const auto serialized = store_->serialize();
   if (auto ok = audit::validate_user_name(name); !ok)
     return ok.error();
   auto hash = audit::hash_password(password, cost_);
@@ -189,6 +192,7 @@ veq::Result<void> AuditTrail::add_user(const std::string& by, const std::string&
 
 veq::Result<SignOff> AuditTrail::sign_off(const std::string& reviewer, const std::string& password,
                                           std::int64_t run_id, const std::string& meaning) {
+  const auto serialized = store_->serialize();
   auto role = authenticate(reviewer, password);
   if (!role)
     return role.error();
@@ -237,6 +241,7 @@ veq::Result<SignOff> AuditTrail::sign_off(const std::string& reviewer, const std
 }
 
 veq::Result<std::vector<SignOff>> AuditTrail::sign_offs(std::int64_t run_id) {
+  const auto serialized = store_->serialize();
   Statement s(store_->db_,
               "SELECT id, run_id, reviewer, meaning, signed_utc, audit_sequence FROM sign_offs "
               "WHERE run_id = ?1 ORDER BY id");
@@ -254,6 +259,7 @@ veq::Result<void> AuditTrail::choose_evaluation(const std::string& user,
                                                 const std::string& password, std::int64_t run_id,
                                                 std::int64_t evaluation_id,
                                                 const std::string& reason) {
+  const auto serialized = store_->serialize();
   if (reason.empty()) {
     return make_error(ErrorKind::invalid_input,
                       "changing the evaluation a result uses needs a reason");
@@ -302,6 +308,7 @@ veq::Result<void> AuditTrail::choose_evaluation(const std::string& user,
 }
 
 veq::Result<std::optional<EvaluationChoice>> AuditTrail::evaluation_choice(std::int64_t run_id) {
+  const auto serialized = store_->serialize();
   Statement s(store_->db_,
               "SELECT run_id, evaluation_id, user_name, reason, chosen_utc FROM evaluation_choices "
               "WHERE run_id = ?1 ORDER BY id DESC LIMIT 1");
@@ -316,6 +323,7 @@ veq::Result<std::optional<EvaluationChoice>> AuditTrail::evaluation_choice(std::
 }
 
 veq::Result<std::vector<audit::AuditRecord>> AuditTrail::records() {
+  const auto serialized = store_->serialize();
   Statement s(store_->db_,
               "SELECT sequence, at_utc, user_name, action, subject, old_value, new_value, reason, "
               "previous_hash, hash FROM audit_records ORDER BY sequence");
@@ -331,6 +339,7 @@ veq::Result<std::vector<audit::AuditRecord>> AuditTrail::records() {
 }
 
 veq::Result<audit::Verification> AuditTrail::verify() {
+  const auto serialized = store_->serialize();
   auto all = records();
   if (!all)
     return all.error();

@@ -34,6 +34,7 @@ constexpr const char* kCalibrationColumns =
 
 Result<MethodVersionRecord> SqliteStore::save_method_version(const std::string& name,
                                                              const std::string& text) {
+  const auto serialized = serialize();
   if (name.empty())
     return make_error(ErrorKind::invalid_input, "a method needs a name to be stored");
   if (auto r = exec("BEGIN IMMEDIATE"); !r)
@@ -87,6 +88,7 @@ Result<MethodVersionRecord> SqliteStore::save_method_version(const std::string& 
 
 Result<void> SqliteStore::replace_method_version(const std::string& name, int version,
                                                  const std::string& text) {
+  const auto serialized = serialize();
   auto existing = load_method_version(name, version);
   if (!existing)
     return existing.error();
@@ -108,6 +110,7 @@ Result<void> SqliteStore::replace_method_version(const std::string& name, int ve
 }
 
 Result<MethodVersionRecord> SqliteStore::load_method_version(const std::string& name, int version) {
+  const auto serialized = serialize();
   const std::string sql =
       std::string("SELECT ") + kVersionColumns +
       " FROM method_versions v JOIN methods m ON m.id = v.method_id WHERE m.name = ?1 AND "
@@ -128,6 +131,7 @@ Result<MethodVersionRecord> SqliteStore::load_method_version(const std::string& 
 
 Result<std::vector<MethodVersionRecord>> SqliteStore::list_method_versions(
     const std::string& name) {
+  const auto serialized = serialize();
   const std::string sql = std::string("SELECT ") + kVersionColumns +
                           " FROM method_versions v JOIN methods m ON m.id = v.method_id "
                           "WHERE m.name = ?1 ORDER BY v.version";
@@ -143,6 +147,7 @@ Result<std::vector<MethodVersionRecord>> SqliteStore::list_method_versions(
 }
 
 Result<std::vector<std::string>> SqliteStore::list_method_names() {
+  const auto serialized = serialize();
   Statement s(db_, "SELECT name FROM methods ORDER BY name");
   std::vector<std::string> out;
   int rc;
@@ -155,6 +160,7 @@ Result<std::vector<std::string>> SqliteStore::list_method_names() {
 
 Result<void> SqliteStore::record_method_use(std::int64_t run_id, const std::string& name,
                                             int version) {
+  const auto serialized = serialize();
   auto existing = load_method_version(name, version);
   if (!existing)
     return existing.error();
@@ -170,6 +176,7 @@ Result<void> SqliteStore::record_method_use(std::int64_t run_id, const std::stri
 }
 
 Result<void> SqliteStore::save_titrant(const TitrantRecord& t) {
+  const auto serialized = serialize();
   if (t.name.empty())
     return make_error(ErrorKind::invalid_input, "a titrant needs a name");
   if (!(t.nominal_conc_mol_per_l > 0.0)) {
@@ -192,6 +199,7 @@ Result<void> SqliteStore::save_titrant(const TitrantRecord& t) {
 }
 
 Result<TitrantRecord> SqliteStore::load_titrant(const std::string& name) {
+  const auto serialized = serialize();
   Statement s(db_,
               "SELECT name, nominal_conc_mol_per_l, lot, prepared_utc FROM titrants "
               "WHERE name = ?1");
@@ -205,6 +213,7 @@ Result<TitrantRecord> SqliteStore::load_titrant(const std::string& name) {
 }
 
 Result<std::vector<TitrantRecord>> SqliteStore::list_titrants() {
+  const auto serialized = serialize();
   Statement s(db_,
               "SELECT name, nominal_conc_mol_per_l, lot, prepared_utc FROM titrants ORDER BY "
               "name");
@@ -218,6 +227,7 @@ Result<std::vector<TitrantRecord>> SqliteStore::list_titrants() {
 }
 
 Result<std::int64_t> SqliteStore::add_titer(const TiterRecord& t) {
+  const auto serialized = serialize();
   if (t.accepted && t.determinations_mol_per_l.size() < 3) {
     return make_error(ErrorKind::invalid_input,
                       "titer of '" + t.titrant +
@@ -264,6 +274,7 @@ Result<std::int64_t> SqliteStore::add_titer(const TiterRecord& t) {
 }
 
 Result<std::vector<TiterRecord>> SqliteStore::titer_history(const std::string& titrant) {
+  const auto serialized = serialize();
   const std::string sql = std::string("SELECT ") + kTiterColumns +
                           " FROM titers t JOIN titrants r ON r.id = t.titrant_id "
                           "WHERE r.name = ?1 ORDER BY t.id";
@@ -300,6 +311,7 @@ Result<std::vector<TiterRecord>> SqliteStore::titer_history(const std::string& t
 }
 
 Result<std::int64_t> SqliteStore::add_calibration(const CalibrationRecord& c) {
+  const auto serialized = serialize();
   if (c.electrode.empty())
     return make_error(ErrorKind::invalid_input, "a calibration needs an electrode name");
   Statement s(db_,
@@ -321,6 +333,7 @@ Result<std::int64_t> SqliteStore::add_calibration(const CalibrationRecord& c) {
 
 Result<std::vector<CalibrationRecord>> SqliteStore::calibration_history(
     const std::string& electrode) {
+  const auto serialized = serialize();
   const std::string sql = std::string("SELECT ") + kCalibrationColumns +
                           " FROM calibrations WHERE electrode = ?1 ORDER BY id";
   Statement s(db_, sql.c_str());

@@ -137,14 +137,16 @@ const char* series_status_name(SeriesStatus status) {
 }
 
 Result<std::int64_t> SqliteStore::begin_series(const std::string& name, const std::string& text) {
+  const auto serialized = serialize();
   Statement s(db_,
-              "INSERT INTO series (name, text, software_version, started_utc, status) "
-              "VALUES (?1, ?2, ?3, ?4, ?5)");
+              "INSERT INTO series (name, text, software_version, started_utc, status, owner) "
+              "VALUES (?1, ?2, ?3, ?4, ?5, ?6)");
   s.bind(1, name)
       .bind(2, text)
       .bind(3, std::string(kVersion))
       .bind(4, utc_now_iso8601())
-      .bind(5, static_cast<int>(SeriesStatus::running));
+      .bind(5, static_cast<int>(SeriesStatus::running))
+      .bind(6, process_owner_token());
   if (s.step() != SQLITE_DONE)
     return storage_error("cannot store series '" + name + "'");
   return sqlite3_last_insert_rowid(db_);
@@ -152,6 +154,7 @@ Result<std::int64_t> SqliteStore::begin_series(const std::string& name, const st
 
 Result<void> SqliteStore::finish_series(std::int64_t series_id, SeriesStatus status,
                                         const std::string& reason) {
+  const auto serialized = serialize();
   Statement s(db_, "UPDATE series SET status = ?1, reason = ?2, finished_utc = ?3 WHERE id = ?4");
   s.bind(1, static_cast<int>(status)).bind(2, reason).bind(3, utc_now_iso8601()).bind(4, series_id);
   if (s.step() != SQLITE_DONE)
@@ -163,6 +166,7 @@ Result<void> SqliteStore::finish_series(std::int64_t series_id, SeriesStatus sta
 }
 
 Result<std::int64_t> SqliteStore::begin_entry(const SeriesEntryRecord& r) {
+  const auto serialized = serialize();
   Statement s(
       db_,
       "INSERT INTO series_entries (series_id, idx, kind, label, method_name, "
@@ -182,6 +186,7 @@ Result<std::int64_t> SqliteStore::begin_entry(const SeriesEntryRecord& r) {
 
 Result<void> SqliteStore::finish_entry(std::int64_t entry_id, const std::string& status,
                                        const std::string& note) {
+  const auto serialized = serialize();
   if (status == "running")
     return make_error(ErrorKind::invalid_input, "an entry cannot end as running");
   Statement s(db_,
@@ -197,6 +202,7 @@ Result<void> SqliteStore::finish_entry(std::int64_t entry_id, const std::string&
 }
 
 Result<std::int64_t> SqliteStore::add_determination(const DeterminationRecord& r) {
+  const auto serialized = serialize();
   Statement s(db_,
               "INSERT INTO determinations (entry_id, replicate, position, run_id, second_run_id, "
               "value, unit, counted, flags, detail_json, recorded_utc) VALUES (?1, ?2, ?3, ?4, ?5, "
@@ -217,6 +223,7 @@ Result<std::int64_t> SqliteStore::add_determination(const DeterminationRecord& r
 }
 
 Result<std::int64_t> SqliteStore::add_entry_result(const EntryResultRecord& r) {
+  const auto serialized = serialize();
   Statement s(db_,
               "INSERT INTO entry_results (entry_id, name, value, unit, count, sd, rsd_percent, "
               "flags, detail_json, recorded_utc) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)");
@@ -237,6 +244,7 @@ Result<std::int64_t> SqliteStore::add_entry_result(const EntryResultRecord& r) {
 }
 
 Result<std::int64_t> SqliteStore::add_burette_check(const BuretteCheckRecord& r) {
+  const auto serialized = serialize();
   Statement s(db_,
               "INSERT INTO burette_checks (entry_id, burette, nominal_volume_ml, test_volume_ml, "
               "water_masses_json, water_temperature_c, mean_volume_ml, systematic_error_percent, "
@@ -260,6 +268,7 @@ Result<std::int64_t> SqliteStore::add_burette_check(const BuretteCheckRecord& r)
 }
 
 Result<SeriesRecord> SqliteStore::load_series(std::int64_t series_id) {
+  const auto serialized = serialize();
   Statement s(db_,
               (std::string("SELECT ") + kSeriesColumns + " FROM series WHERE id = ?1").c_str());
   s.bind(1, series_id);
@@ -273,6 +282,7 @@ Result<SeriesRecord> SqliteStore::load_series(std::int64_t series_id) {
 }
 
 Result<std::vector<SeriesRecord>> SqliteStore::list_series() {
+  const auto serialized = serialize();
   Statement s(db_, (std::string("SELECT ") + kSeriesColumns + " FROM series ORDER BY id").c_str());
   std::vector<SeriesRecord> out;
   int rc = 0;
@@ -284,6 +294,7 @@ Result<std::vector<SeriesRecord>> SqliteStore::list_series() {
 }
 
 Result<std::vector<SeriesEntryRecord>> SqliteStore::load_entries(std::int64_t series_id) {
+  const auto serialized = serialize();
   Statement s(db_, (std::string("SELECT ") + kEntryColumns +
                     " FROM series_entries WHERE series_id = ?1 ORDER BY idx, id")
                        .c_str());
@@ -298,6 +309,7 @@ Result<std::vector<SeriesEntryRecord>> SqliteStore::load_entries(std::int64_t se
 }
 
 Result<std::vector<DeterminationRecord>> SqliteStore::load_determinations(std::int64_t entry_id) {
+  const auto serialized = serialize();
   Statement s(db_, (std::string("SELECT ") + kDeterminationColumns +
                     " FROM determinations WHERE entry_id = ?1 ORDER BY id")
                        .c_str());
@@ -313,6 +325,7 @@ Result<std::vector<DeterminationRecord>> SqliteStore::load_determinations(std::i
 }
 
 Result<std::vector<EntryResultRecord>> SqliteStore::load_entry_results(std::int64_t entry_id) {
+  const auto serialized = serialize();
   Statement s(db_, (std::string("SELECT ") + kEntryResultColumns +
                     " FROM entry_results WHERE entry_id = ?1 ORDER BY id")
                        .c_str());
@@ -328,6 +341,7 @@ Result<std::vector<EntryResultRecord>> SqliteStore::load_entry_results(std::int6
 
 Result<std::vector<BuretteCheckRecord>> SqliteStore::burette_check_history(
     const std::string& burette) {
+  const auto serialized = serialize();
   Statement s(db_, (std::string("SELECT ") + kBuretteCheckColumns +
                     " FROM burette_checks WHERE burette = ?1 ORDER BY id")
                        .c_str());

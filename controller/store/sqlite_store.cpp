@@ -6,7 +6,12 @@
 #include <cstdlib>
 #include <ctime>
 #include <filesystem>
+#include <fstream>
+#include <sstream>
 #include <utility>
+#include <vector>
+
+#include <unistd.h>
 
 #include "common/version.hpp"
 #include "controller/store/sqlite_statement.hpp"
@@ -339,6 +344,12 @@ BEGIN SELECT RAISE(ABORT, 'burette checks cannot be changed'); END;
 CREATE TRIGGER burette_checks_are_undeletable BEFORE DELETE ON burette_checks
 BEGIN SELECT RAISE(ABORT, 'burette checks cannot be deleted'); END;
 )sql",
+    // 6: the process that owns a running run or series, so that opening the
+    // file marks interrupted only what a dead process left running.
+    R"sql(
+ALTER TABLE runs ADD COLUMN owner TEXT NOT NULL DEFAULT '';
+ALTER TABLE series ADD COLUMN owner TEXT NOT NULL DEFAULT '';
+)sql",
 };
 constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
 static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");
@@ -398,6 +409,63 @@ const char* run_status_name(RunStatus status) {
   return "unknown";
 }
 
+namespace {
+
+std::string read_first_line(const std::string& path) {
+  std::ifstream in(path);
+  std::string line;
+  std::getline(in, line);
+  return line;
+}
+
+/// A process's start time in clock ticks after boot (field 22 of
+/// /proc/PID/stat), or "" if there is no such live process (a zombie, a
+/// process killed but not yet reaped, counts as dead).
+std::string process_start_ticks(long pid) {
+  const std::string stat = read_first_line("/proc/" + std::to_string(pid) + "/stat");
+  // The command name (field 2) is in parentheses and may hold spaces.
+  const auto close = stat.rfind(')');
+  if (close == std::string::npos)
+    return "";
+  std::istringstream fields(stat.substr(close + 1));
+  std::string state;
+  fields >> state;  // field 3
+  if (state.empty() || state == "Z" || state == "X")
+    return "";
+  std::string field;
+  for (int i = 4; i <= 22 && fields >> field; ++i) {
+  }
+  return field;
+}
+
+}  // namespace
+
+std::string process_owner_token() {
+  // Not cached: a forked child is another process with another id.
+  const long pid = ::getpid();
+  return read_first_line("/proc/sys/kernel/random/boot_id") + "/" + std::to_string(pid) + "/" +
+         process_start_ticks(pid);
+}
+
+bool owner_is_alive(const std::string& token) {
+  // "" is a run from before schema 6 (or from an older veq): nobody owns it.
+  const auto first = token.find('/');
+  const auto second = token.find('/', first == std::string::npos ? first : first + 1);
+  if (first == std::string::npos || second == std::string::npos)
+    return false;
+  // Another boot (a power cut, a restart) or another machine: not running here.
+  if (token.substr(0, first) != read_first_line("/proc/sys/kernel/random/boot_id"))
+    return false;
+  const std::string pid_text = token.substr(first + 1, second - first - 1);
+  char* end = nullptr;
+  const long pid = std::strtol(pid_text.c_str(), &end, 10);
+  if (pid_text.empty() || *end != '\0' || pid <= 0)
+    return false;
+  // The same process id with another start time is a later process.
+  const std::string started = process_start_ticks(pid);
+  return !started.empty() && started == token.substr(second + 1);
+}
+
 std::string default_database_path() {
   if (const char* env = std::getenv("VEQ_DB"); env && *env)
     return env;
@@ -439,6 +507,7 @@ Result<void> SqliteStore::exec(const char* sql) {
 }
 
 Result<int> SqliteStore::schema_version() {
+  const auto serialized = serialize();
   Statement s(db_, "PRAGMA user_version");
   if (!s.ok() || s.step() != SQLITE_ROW)
     return storage_error("cannot read the schema version");
@@ -544,45 +613,72 @@ Result<std::unique_ptr<SqliteStore>> SqliteStore::open(const std::string& path) 
       return r.error();
   }
 
-  // A run still "running" here was cut off by a crash or power loss.
-  {
+  // A run still "running" here was cut off by a crash or power loss, unless
+  // the process that owns it is still alive: another instrument's veq, or
+  // this process through another connection, may be titrating right now.
+  const auto dead_owned = [&](const char* table) -> Result<std::vector<std::int64_t>> {
+    Statement s(db, (std::string("SELECT id, owner FROM ") + table + " WHERE status = ?1").c_str());
+    s.bind(1, static_cast<int>(RunStatus::running));  // SeriesStatus::running has the same value
+    std::vector<std::int64_t> ids;
+    int rc = 0;
+    while ((rc = s.step()) == SQLITE_ROW) {
+      if (!owner_is_alive(s.text(1)))
+        ids.push_back(s.integer(0));
+    }
+    if (rc != SQLITE_DONE)
+      return store->storage_error(std::string("cannot read the running ") + table);
+    return ids;
+  };
+  static_assert(static_cast<int>(RunStatus::running) == static_cast<int>(SeriesStatus::running));
+  auto dead_runs = dead_owned("runs");
+  if (!dead_runs)
+    return dead_runs.error();
+  for (const std::int64_t id : *dead_runs) {
     Statement s(db,
                 "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3 "
-                "WHERE status = ?4");
+                "WHERE id = ?4 AND status = ?5");
     s.bind(1, static_cast<int>(RunStatus::interrupted))
         .bind(2, std::string("interrupted: veq stopped before the run ended"))
         .bind(3, utc_now_iso8601())
-        .bind(4, static_cast<int>(RunStatus::running));
+        .bind(4, id)
+        .bind(5, static_cast<int>(RunStatus::running));
     if (s.step() != SQLITE_DONE)
-      return store->storage_error("cannot mark interrupted runs");
-    store->interrupted_on_open_ = sqlite3_changes(db);
+      return store->storage_error("cannot mark run " + std::to_string(id) + " interrupted");
+    store->interrupted_on_open_ += sqlite3_changes(db);
   }
   // Likewise a series, and the entry it was running.
-  {
+  auto dead_series = dead_owned("series");
+  if (!dead_series)
+    return dead_series.error();
+  for (const std::int64_t id : *dead_series) {
     const std::string now = utc_now_iso8601();
     Statement e(db,
                 "UPDATE series_entries SET status = 'interrupted', finished_utc = ?1, note = "
                 "note || CASE WHEN note = '' THEN '' ELSE char(10) END || "
-                "'interrupted: veq stopped before the entry ended' WHERE status = 'running'");
-    e.bind(1, now);
+                "'interrupted: veq stopped before the entry ended' "
+                "WHERE status = 'running' AND series_id = ?2");
+    e.bind(1, now).bind(2, id);
     Statement s(db,
-                "UPDATE series SET status = ?1, reason = ?2, finished_utc = ?3 WHERE status = ?4");
+                "UPDATE series SET status = ?1, reason = ?2, finished_utc = ?3 "
+                "WHERE id = ?4 AND status = ?5");
     s.bind(1, static_cast<int>(SeriesStatus::interrupted))
         .bind(2, std::string("interrupted: veq stopped before the series ended"))
         .bind(3, now)
-        .bind(4, static_cast<int>(SeriesStatus::running));
+        .bind(4, id)
+        .bind(5, static_cast<int>(SeriesStatus::running));
     if (e.step() != SQLITE_DONE || s.step() != SQLITE_DONE)
-      return store->storage_error("cannot mark interrupted series");
+      return store->storage_error("cannot mark series " + std::to_string(id) + " interrupted");
   }
   return store;
 }
 
 Result<std::int64_t> SqliteStore::begin_run(const NewRun& run) {
+  const auto serialized = serialize();
   Statement s(db_,
               "INSERT INTO runs (sample_id, series, method_name, method_json, signal_kind, "
               "sample_volume_ml, titrant_name, titrant_conc_mol_per_l, burette, sensor, "
-              "software_version, started_utc, status) "
-              "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)");
+              "software_version, started_utc, status, owner) "
+              "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14)");
   s.bind(1, run.sample_id)
       .bind(2, run.series)
       .bind(3, run.method_name)
@@ -595,13 +691,15 @@ Result<std::int64_t> SqliteStore::begin_run(const NewRun& run) {
       .bind(10, run.sensor)
       .bind(11, std::string(kVersion))
       .bind(12, utc_now_iso8601())
-      .bind(13, static_cast<int>(RunStatus::running));
+      .bind(13, static_cast<int>(RunStatus::running))
+      .bind(14, process_owner_token());
   if (s.step() != SQLITE_DONE)
     return storage_error("cannot start run for '" + run.sample_id + "'");
   return static_cast<std::int64_t>(sqlite3_last_insert_rowid(db_));
 }
 
 Result<void> SqliteStore::append_point(std::int64_t run_id, const PointRecord& p) {
+  const auto serialized = serialize();
   // One statement in autocommit mode: committed (and fsynced) when step returns.
   Statement s(db_,
               "INSERT INTO points (run_id, idx, time_s, volume_ml, signal, temperature_c, "
@@ -623,6 +721,7 @@ Result<void> SqliteStore::append_point(std::int64_t run_id, const PointRecord& p
 
 Result<void> SqliteStore::finish_run(std::int64_t run_id, RunStatus status,
                                      const std::string& reason) {
+  const auto serialized = serialize();
   Statement s(db_, "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3 WHERE id = ?4");
   s.bind(1, static_cast<int>(status)).bind(2, reason).bind(3, utc_now_iso8601()).bind(4, run_id);
   if (s.step() != SQLITE_DONE)
@@ -634,6 +733,7 @@ Result<void> SqliteStore::finish_run(std::int64_t run_id, RunStatus status,
 }
 
 Result<std::int64_t> SqliteStore::add_evaluation(std::int64_t run_id, const EvaluationRecord& e) {
+  const auto serialized = serialize();
   if (auto r = exec("BEGIN IMMEDIATE"); !r)
     return r.error();
   auto fail = [&](const std::string& what) -> Result<std::int64_t> {
@@ -674,6 +774,7 @@ Result<std::int64_t> SqliteStore::add_evaluation(std::int64_t run_id, const Eval
 }
 
 Result<std::int64_t> SqliteStore::add_result(const ResultRecord& r) {
+  const auto serialized = serialize();
   Statement s(db_,
               "INSERT INTO results (run_id, evaluation_id, name, value, unit, created_utc) "
               "VALUES (?1, ?2, ?3, ?4, ?5, ?6)");
@@ -688,6 +789,7 @@ Result<std::int64_t> SqliteStore::add_result(const ResultRecord& r) {
 Result<std::int64_t> SqliteStore::import_run(const NewRun& run,
                                              const std::vector<PointRecord>& points,
                                              const std::string& origin) {
+  const auto serialized = serialize();
   if (auto r = exec("BEGIN IMMEDIATE"); !r)
     return r.error();
   auto id = begin_run(run);
@@ -722,6 +824,7 @@ Result<std::int64_t> SqliteStore::import_run(const NewRun& run,
 }
 
 Result<void> SqliteStore::record_event(std::int64_t run_id, const RunEvent& e) {
+  const auto serialized = serialize();
   Statement s(db_,
               "INSERT INTO run_events (run_id, idx, time_s, from_state, to_state, reason, "
               "recorded_utc) VALUES (?1, (SELECT IFNULL(MAX(idx), -1) + 1 FROM run_events "
@@ -739,6 +842,7 @@ Result<void> SqliteStore::record_event(std::int64_t run_id, const RunEvent& e) {
 }
 
 Result<std::vector<RunEvent>> SqliteStore::load_events(std::int64_t run_id) {
+  const auto serialized = serialize();
   Statement s(db_,
               "SELECT time_s, from_state, to_state, reason, recorded_utc FROM run_events "
               "WHERE run_id = ?1 ORDER BY idx");
@@ -755,6 +859,7 @@ Result<std::vector<RunEvent>> SqliteStore::load_events(std::int64_t run_id) {
 }
 
 Result<RunRecord> SqliteStore::load_run(std::int64_t run_id) {
+  const auto serialized = serialize();
   const std::string sql = std::string("SELECT ") + kRunColumns + " FROM runs WHERE id = ?1";
   Statement s(db_, sql.c_str());
   s.bind(1, run_id);
@@ -768,6 +873,7 @@ Result<RunRecord> SqliteStore::load_run(std::int64_t run_id) {
 }
 
 Result<std::vector<RunRecord>> SqliteStore::list_runs() {
+  const auto serialized = serialize();
   const std::string sql = std::string("SELECT ") + kRunColumns + " FROM runs ORDER BY id";
   Statement s(db_, sql.c_str());
   std::vector<RunRecord> out;
@@ -780,6 +886,7 @@ Result<std::vector<RunRecord>> SqliteStore::list_runs() {
 }
 
 Result<std::vector<PointRecord>> SqliteStore::load_points(std::int64_t run_id) {
+  const auto serialized = serialize();
   Statement s(db_,
               "SELECT idx, time_s, volume_ml, signal, temperature_c, drift_per_min, settle_s "
               "FROM points WHERE run_id = ?1 ORDER BY idx");
@@ -803,6 +910,7 @@ Result<std::vector<PointRecord>> SqliteStore::load_points(std::int64_t run_id) {
 }
 
 Result<std::vector<EvaluationRecord>> SqliteStore::load_evaluations(std::int64_t run_id) {
+  const auto serialized = serialize();
   Statement s(db_,
               "SELECT id, method, options_json, flags, created_utc FROM evaluations "
               "WHERE run_id = ?1 ORDER BY id");
@@ -836,6 +944,7 @@ Result<std::vector<EvaluationRecord>> SqliteStore::load_evaluations(std::int64_t
 }
 
 Result<std::vector<ResultRecord>> SqliteStore::load_results(std::int64_t run_id) {
+  const auto serialized = serialize();
   Statement s(db_,
               "SELECT id, IFNULL(evaluation_id, 0), name, value, unit FROM results "
               "WHERE run_id = ?1 ORDER BY id");

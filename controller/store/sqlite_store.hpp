@@ -2,6 +2,7 @@
 #pragma once
 
 #include <memory>
+#include <mutex>
 #include <string>
 
 #include "controller/store/method_store.hpp"
@@ -13,11 +14,16 @@ struct sqlite3;
 namespace veq::store {
 
 /// Schema version this build writes; older files are migrated on open.
-inline constexpr int kSchemaVersion = 5;
+inline constexpr int kSchemaVersion = 6;
 
 /// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
 std::string default_database_path();
 
+/// One connection to the file. Safe to share between threads: every call
+/// runs alone on the connection (a lock held for the call), so the
+/// instruments of one process write through one writer and never contend with
+/// each other for SQLite's write lock; a call returns once its transaction is
+/// committed. Other processes use their own connections (busy timeout 5 s).
 class SqliteStore final : public RunStore, public MethodStore, public SeriesStore {
  public:
   /// Opens (creating if absent) and migrates a store. Refuses a file that is
@@ -92,15 +98,28 @@ class SqliteStore final : public RunStore, public MethodStore, public SeriesStor
   SqliteStore(sqlite3* db, std::string path);
   Result<void> exec(const char* sql);
   Error storage_error(const std::string& what) const;
+  /// Held for each public call (recursive: a call may make another).
+  std::unique_lock<std::recursive_mutex> serialize() const {
+    return std::unique_lock<std::recursive_mutex>(mutex_);
+  }
 
   sqlite3* db_;
   std::string path_;
   int interrupted_on_open_ = 0;
+  mutable std::recursive_mutex mutex_;
 };
 
 /// The SQL of migration `target` (1-based: it brings schema target-1 to
 /// target), or nullptr. For tests that build a file of an older schema.
 const char* schema_migration_sql(int target);
+
+/// This process as the owner of the runs and series it starts: the boot's
+/// id, the process id and its start time ("boot/pid/ticks"), so that a later
+/// process with the same id is not taken for it.
+std::string process_owner_token();
+/// Whether the process a token names is still running on this machine. A
+/// token of another boot or machine, or an empty one, is not alive.
+bool owner_is_alive(const std::string& token);
 
 /// Current time as ISO 8601 UTC with milliseconds ("2026-12-02T01:48:22.123Z").
 std::string utc_now_iso8601();

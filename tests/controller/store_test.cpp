@@ -6,6 +6,9 @@
 #include <filesystem>
 #include <fstream>
 
+#include <sys/wait.h>
+#include <unistd.h>
+
 #include "controller/store/sqlite_store.hpp"
 #include "tests/controller/raw_sql.hpp"
 
@@ -111,20 +114,57 @@ TEST(SqliteStore, PointsOfAnUnknownRunAreRefused) {
   EXPECT_FALSE((*store)->append_point(42, PointRecord{}).has_value());  // foreign keys on
 }
 
-TEST(SqliteStore, RunningRunsAreMarkedInterruptedOnNextOpen) {
+TEST(SqliteStore, RunningRunsOfADeadProcessAreMarkedInterruptedOnNextOpen) {
   TempDir dir;
   const auto path = dir.file("d.sqlite");
-  {
+  (void)SqliteStore::open(path);  // the schema, before the child writes
+  // A child process starts a run, stores a point and dies without finishing
+  // it, as a killed veq would.
+  const pid_t child = fork();
+  ASSERT_GE(child, 0);
+  if (child == 0) {
     auto store = SqliteStore::open(path);
-    auto id = (*store)->begin_run(sample_run());
-    ASSERT_TRUE((*store)->append_point(*id, PointRecord{0, 0, 0, -50, 25, 0, 3}).has_value());
-    // No finish_run: as if the process died here.
+    auto id = store ? (*store)->begin_run(sample_run()) : Result<std::int64_t>(store.error());
+    const bool stored =
+        id && (*store)->append_point(*id, PointRecord{0, 0, 0, -50, 25, 0, 3}).has_value();
+    _exit(stored ? 0 : 1);  // no destructors, no finish_run
   }
+  int status = 0;
+  ASSERT_EQ(waitpid(child, &status, 0), child);
+  ASSERT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0);
   auto store = SqliteStore::open(path);
   EXPECT_EQ((*store)->interrupted_on_open(), 1);
   auto run = (*store)->load_run(1);
   EXPECT_EQ(run->status, RunStatus::interrupted);
   EXPECT_EQ(run->point_count, 1);
+}
+
+TEST(SqliteStore, RunsOfALiveProcessStayRunningWhenTheFileIsOpenedAgain) {
+  // Another instrument's veq (or this process through a second connection)
+  // is titrating: opening the file must not cut its run off.
+  TempDir dir;
+  const auto path = dir.file("e.sqlite");
+  auto first = SqliteStore::open(path);
+  auto id = (*first)->begin_run(sample_run());
+  ASSERT_TRUE(id.has_value());
+  auto second = SqliteStore::open(path);
+  EXPECT_EQ((*second)->interrupted_on_open(), 0);
+  EXPECT_EQ((*second)->load_run(*id)->status, RunStatus::running);
+  EXPECT_TRUE((*first)->append_point(*id, PointRecord{0, 0, 0, -50, 25, 0, 3}).has_value());
+  EXPECT_TRUE((*first)->finish_run(*id, RunStatus::completed, "done").has_value());
+}
+
+TEST(SqliteStore, OwnerTokensNameOneLiveProcess) {
+  const std::string me = process_owner_token();
+  EXPECT_TRUE(owner_is_alive(me)) << me;
+  // The same process id with another start time is a later process; another
+  // boot, an empty token (a file from before schema 6) or garbage: not alive.
+  const auto last = me.rfind('/');
+  EXPECT_FALSE(owner_is_alive(me.substr(0, last + 1) + "1"));
+  EXPECT_FALSE(owner_is_alive("00000000-0000-0000-0000-000000000000" + me.substr(me.find('/'))));
+  EXPECT_FALSE(owner_is_alive(""));
+  EXPECT_FALSE(owner_is_alive("no slashes"));
+  EXPECT_FALSE(owner_is_alive(me.substr(0, me.find('/')) + "/x/1"));
 }
 
 std::uintmax_t size_and_bytes(const std::string& path, std::string* bytes) {
