@@ -547,15 +547,15 @@ class Titration {
   Result<void> check_controls() {
     if (!control_)
       return {};
-    if (control_->abort.load())
+    if (control_->aborted())
       return make_error(ErrorKind::aborted, "aborted by the operator");
     if (control_->pause.load()) {
       const RunState was = state_;
       enter(RunState::paused, "paused by the operator");
-      while (control_->pause.load() && !control_->abort.load()) {
+      while (control_->pause.load() && !control_->aborted()) {
         inst_.clock.sleep_for(std::chrono::milliseconds(100));
       }
-      if (control_->abort.load())
+      if (control_->aborted())
         return make_error(ErrorKind::aborted, "aborted by the operator");
       enter(was, "resumed by the operator");
     }

@@ -137,6 +137,11 @@ const char* run_state_name(RunState state);
 struct RunControl {
   std::atomic<bool> abort{false};
   std::atomic<bool> pause{false};
+  /// A further abort flag the run also obeys, if set: a series' own, so that
+  /// the operator's stop reaches the titration running at that moment, not
+  /// only the next step.
+  const std::atomic<bool>* also_abort = nullptr;
+  bool aborted() const { return abort.load() || (also_abort && also_abort->load()); }
 };
 
 /// Hears what a run does (the command line prints it, the ui plots it).

@@ -953,6 +953,7 @@ class SeriesRun {
           sample.titrant_conc_mol_per_l = t.conc_mol_per_l;
     controller::Instruments instruments{*burette, inst_.sensor, inst_.clock};
     controller::RunControl control;
+    control.also_abort = abort_;
     auto outcome =
         controller::run_titration(instruments, stores_.runs, sample, tm, observer_, &control);
     StageMeasured stage;

@@ -4,6 +4,7 @@
 // position_truths), which the controller never sees.
 #include <gtest/gtest.h>
 
+#include <atomic>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -310,6 +311,47 @@ TEST(Series, ABuretteFaultStopsTheSeriesWithItsPointsKept) {
   expect_clean_stop(b, outcome, "stalled");
   EXPECT_EQ(find_entry(outcome, "well 1")->status, "done");
   EXPECT_EQ(find_entry(outcome, "well 2")->status, "failed");
+}
+
+/// Sets the series' abort flag at the fifth point of an entry's titration.
+class AbortMidTitration final : public SeriesObserver {
+ public:
+  AbortMidTitration(std::string label, std::atomic<bool>& abort)
+      : label_(std::move(label)), abort_(abort) {}
+  void on_entry(const std::string&, const std::string& label) override { armed_ = label == label_; }
+  void on_point(const store::PointRecord&) override {
+    if (armed_ && ++points_ == 5)
+      abort_.store(true);
+  }
+
+ private:
+  std::string label_;
+  std::atomic<bool>& abort_;
+  bool armed_ = false;
+  int points_ = 0;
+};
+
+TEST(Series, TheOperatorsAbortReachesTheTitrationRunningAtThatMoment) {
+  // Before, the series' abort was read only between steps: a titration went
+  // on dosing to its end after the operator's stop.
+  SeriesBench b;
+  b.prepare_lab();
+  std::atomic<bool> abort{false};
+  AbortMidTitration observer("well 2", abort);
+  const auto outcome = b.run(series_with(kTwoSamples), &observer, &abort);
+  EXPECT_EQ(outcome.status, store::SeriesStatus::aborted) << outcome.reason;
+  const auto* well = find_entry(outcome, "well 2");
+  ASSERT_NE(well, nullptr);
+  ASSERT_FALSE(well->run_ids.empty());
+  auto run = b.store->load_run(well->run_ids.back());
+  ASSERT_TRUE(run.has_value());
+  EXPECT_EQ(run->status, store::RunStatus::aborted);
+  // Stopped at the point it was asked to, not at the end of the titration
+  // (a whole one takes 40 to 60 points here).
+  EXPECT_LE(run->point_count, 6);
+  const double delivered = b.bench->burette().true_delivered_ml();
+  b.clock.sleep_for(drivers::from_seconds(60.0));
+  EXPECT_EQ(b.bench->burette().true_delivered_ml(), delivered);
 }
 
 TEST(Series, ALostElectrodeStopsTheSeries) {
