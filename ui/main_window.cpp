@@ -20,6 +20,7 @@
 #include "ui/instruments_view.hpp"
 #include "ui/live_run_view.hpp"
 #include "ui/rack_worker.hpp"
+#include "ui/review/review_views.hpp"
 #include "ui/run_browser.hpp"
 #include "ui/series_view.hpp"
 
@@ -74,6 +75,15 @@ MainWindow::MainWindow(QWidget* parent, MainWindowOptions options)
   add_view("Series", series_);
   add_view("Live run", live_);
   add_view("Stored runs", browser_);
+  methods_ = new review::MethodEditorView();
+  results_ = new review::ResultsView();
+  supplies_ = new review::SuppliesView();
+  add_view("Methods", methods_);
+  add_view("Results and review", results_);
+  add_view("Titrants, electrodes, burettes", supplies_);
+  connect(methods_, &review::MethodEditorView::problem, this, &MainWindow::report);
+  connect(results_, &review::ResultsView::problem, this, &MainWindow::report);
+  connect(supplies_, &review::SuppliesView::problem, this, &MainWindow::report);
 
   connect(browser_, &RunBrowser::problem, this, &MainWindow::report);
   connect(instruments_, &InstrumentsView::problem, this, &MainWindow::report);
@@ -101,7 +111,14 @@ MainWindow::~MainWindow() {
   // The worker stops before the views it talks to, and the browser lets go
   // of the store before the store goes.
   worker_->shutdown();
+  detach_store();
+}
+
+void MainWindow::detach_store() {
   (void)browser_->set_store(nullptr);
+  (void)methods_->set_store(nullptr);
+  (void)results_->set_store(nullptr);
+  (void)supplies_->set_store(nullptr);
 }
 
 int MainWindow::add_view(const QString& title, QWidget* view) {
@@ -186,11 +203,16 @@ Result<void> MainWindow::create_database(const std::string& path) {
   auto opened = store::SqliteStore::open(path);
   if (!opened)
     return opened.error();
-  (void)browser_->set_store(nullptr);
+  detach_store();
   store_ = std::move(opened).value();
   database_path_ = path;
   if (auto listed = browser_->set_store(store_.get()); !listed)
     return listed.error();
+  for (auto attached : {methods_->set_store(store_.get()), results_->set_store(store_.get()),
+                        supplies_->set_store(store_.get())}) {
+    if (!attached)
+      return attached.error();
+  }
   statusBar()->showMessage(QString::fromStdString(path) + " - " +
                            QString::number(browser_->run_count()) + " runs");
   return {};

@@ -26,6 +26,11 @@ class LiveRunView;
 class RackWorker;
 class RunBrowser;
 class SeriesView;
+namespace review {
+class MethodEditorView;
+class ResultsView;
+class SuppliesView;
+}  // namespace review
 
 struct MainWindowOptions {
   /// Where the window's layout and the instruments' connections are kept: an
@@ -85,6 +90,8 @@ class MainWindow : public QMainWindow {
   void about();
   void save_layout();
   void restore_layout();
+  /// Every view lets go of the store (before it is replaced or closed).
+  void detach_store();
 
   MainWindowOptions options_;
   std::unique_ptr<store::SqliteStore> store_;
@@ -95,6 +102,9 @@ class MainWindow : public QMainWindow {
   QMenu* view_menu_ = nullptr;
   std::vector<QWidget*> views_;  ///< in the order added (owned by their scroll areas)
   RunBrowser* browser_ = nullptr;
+  review::MethodEditorView* methods_ = nullptr;
+  review::ResultsView* results_ = nullptr;
+  review::SuppliesView* supplies_ = nullptr;
   InstrumentsView* instruments_ = nullptr;
   SeriesView* series_ = nullptr;
   LiveRunView* live_ = nullptr;

@@ -233,7 +233,7 @@ TEST_F(Desktop, SeriesViewQueuesPastedRowsAndRefusesAMalformedPaste) {
 
   // Through the clipboard and the keyboard, as from a spreadsheet.
   QGuiApplication::clipboard()->setText("well 5\tsample\ttap water\t1\t25\tmL\t2\t\t15\n");
-  auto* table = window.findChild<QTableWidget*>();
+  auto* table = view.findChild<QTableWidget*>();  // the queue, not a review table
   ASSERT_NE(table, nullptr);
   window.show();
   QApplication::setActiveWindow(&window);
@@ -538,17 +538,19 @@ TEST_F(Desktop, LayoutAndConnectionsAreRememberedAndViewsFollowTheKeyboard) {
     window.show();
     QApplication::setActiveWindow(&window);
     ASSERT_TRUE(QTest::qWaitForWindowActive(&window));
-    EXPECT_EQ(window.view_count(), 4);
+    EXPECT_EQ(window.view_count(), 7);
     // Ctrl+2: the second view, Series.
     QTest::keyClick(&window, Qt::Key_2, Qt::ControlModifier);
     EXPECT_EQ(window.view_title(window.current_view()), "Series");
     QTest::keyClick(&window, Qt::Key_4, Qt::ControlModifier);
     EXPECT_EQ(window.view_title(window.current_view()), "Stored runs");
+    QTest::keyClick(&window, Qt::Key_5, Qt::ControlModifier);
+    EXPECT_EQ(window.view_title(window.current_view()), "Methods");
     // A view added later is one line, and gets its key.
     auto* extra = new QWidget();
-    EXPECT_EQ(window.add_view("Reviewing", extra), 4);
-    QTest::keyClick(&window, Qt::Key_5, Qt::ControlModifier);
-    EXPECT_EQ(window.current_view(), 4);
+    EXPECT_EQ(window.add_view("Extra", extra), 7);
+    QTest::keyClick(&window, Qt::Key_8, Qt::ControlModifier);
+    EXPECT_EQ(window.current_view(), 7);
     window.show_view(1);
     window.resize(1111, 777);
     window.instruments().use_simulated();
