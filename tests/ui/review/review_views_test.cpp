@@ -509,7 +509,7 @@ TEST_F(ReviewStore, ExpiredTiterIsShownInWordsAndColour) {
 }
 
 // ---------------------------------------------------------------------------
-// Screenshots for the user guide (docs/desktop-review.md)
+// Screenshots for the user guide (docs/desktop.md, "Reviewing results")
 
 /// Saves a widget as a small PNG (256 colours are plenty for tables and line charts).
 void save_screenshot(QWidget& widget, const std::string& name) {
