@@ -106,8 +106,10 @@ struct TempFiles {
 TEST(SeriesLoad, FourInstrumentsOnOneFileGiveTheirAloneResultsAndLoseNoPoint) {
   constexpr int kInstruments = 4;
   TempFiles files;
-  // Every connection is opened before any series starts: opening a store
-  // marks the runs still "running" in the file as interrupted.
+  // A connection each (processes of their own would do the same): SQLite's
+  // file lock between them, and opening the file while another instrument
+  // runs leaves its run alone (its owner is alive). The shared connection
+  // of one process is the load bench's case.
   std::vector<std::unique_ptr<Instrument>> shared;
   for (int i = 0; i < kInstruments; ++i)
     shared.push_back(std::make_unique<Instrument>(i, files.db("lab.sqlite")));
