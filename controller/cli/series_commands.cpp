@@ -96,9 +96,16 @@ int run_series_file(const SeriesRunOptions& o) {
   std::printf("series %lld %s: %s\n", static_cast<long long>(outcome.series_id),
               store::series_status_name(outcome.status), outcome.reason.c_str());
   for (const auto& e : outcome.entries) {
-    if (e.mean)
+    // Every named result (a method titrating in stages gives one per metal).
+    if (e.results.size() > 1) {
+      for (const auto& r : e.results)
+        if (r.mean)
+          std::printf("  %-26s %-9s %12.6g %s %s\n", e.label.c_str(), e.status.c_str(), *r.mean,
+                      r.unit.c_str(), r.name.c_str());
+    } else if (e.mean) {
       std::printf("  %-26s %-9s %12.6g %s\n", e.label.c_str(), e.status.c_str(), *e.mean,
                   e.unit.c_str());
+    }
   }
   return outcome.status == store::SeriesStatus::completed ? 0 : 1;
 }
