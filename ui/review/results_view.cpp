@@ -33,34 +33,8 @@ namespace veq::ui::review {
 
 namespace {
 
-QTableWidget* make_table(QWidget* parent, const QStringList& headers, const char* name) {
-  auto* table = new QTableWidget(parent);
-  table->setObjectName(name);
-  table->setColumnCount(static_cast<int>(headers.size()));
-  table->setHorizontalHeaderLabels(headers);
-  table->setEditTriggers(QAbstractItemView::NoEditTriggers);
-  table->setSelectionBehavior(QAbstractItemView::SelectRows);
-  table->setSelectionMode(QAbstractItemView::SingleSelection);
-  table->verticalHeader()->setVisible(false);
-  table->horizontalHeader()->setStretchLastSection(true);
-  table->setAlternatingRowColors(true);
-  return table;
-}
-
 void set_cell(QTableWidget* table, int row, int column, const QString& text) {
   table->setItem(row, column, new QTableWidgetItem(text));
-}
-
-QString q(const std::string& text) {
-  return QString::fromStdString(text);
-}
-
-/// Milliseconds since 1970 of the store's ISO 8601 UTC text (NaN if unreadable).
-double epoch_ms(const std::string& iso_utc) {
-  auto t = method::parse_utc(iso_utc);
-  if (!t)
-    return std::nan("");
-  return static_cast<double>(t->time_since_epoch().count());
 }
 
 /// A day of the filter ("" for the "any" value at the edit's minimum).

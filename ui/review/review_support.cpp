@@ -1,14 +1,17 @@
 #include "ui/review/review_support.hpp"
 
+#include <cmath>
 #include <filesystem>
 
 #include <QtWidgets/QDialog>
 #include <QtWidgets/QDialogButtonBox>
 #include <QtWidgets/QFormLayout>
+#include <QtWidgets/QHeaderView>
 #include <QtWidgets/QLineEdit>
 #include <QtWidgets/QVBoxLayout>
 
 #include "controller/audit/audit.hpp"
+#include "controller/method/utc_time.hpp"
 
 namespace veq::ui::review {
 
@@ -82,6 +85,29 @@ Result<std::unique_ptr<store::AuditTrail>> open_audit_trail(store::SqliteStore& 
                           "): add the first administrator with `veq user add --db " + store.path() +
                           "`, then sign in here");
   return store::AuditTrail::open(store.path(), key.string(), false);
+}
+
+QString q(const std::string& text) {
+  return QString::fromStdString(text);
+}
+
+QTableWidget* make_table(QWidget* parent, const QStringList& headers, const char* name) {
+  auto* table = new QTableWidget(parent);
+  table->setObjectName(name);
+  table->setColumnCount(static_cast<int>(headers.size()));
+  table->setHorizontalHeaderLabels(headers);
+  table->setEditTriggers(QAbstractItemView::NoEditTriggers);
+  table->setSelectionBehavior(QAbstractItemView::SelectRows);
+  table->setSelectionMode(QAbstractItemView::SingleSelection);
+  table->verticalHeader()->setVisible(false);
+  table->horizontalHeader()->setStretchLastSection(true);
+  table->setAlternatingRowColors(true);
+  return table;
+}
+
+double epoch_ms(const std::string& iso_utc) {
+  auto t = method::parse_utc(iso_utc);
+  return t ? static_cast<double>(t->time_since_epoch().count()) : std::nan("");
 }
 
 QString fixed(double value, int decimals) {

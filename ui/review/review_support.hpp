@@ -9,7 +9,9 @@
 #include <string>
 
 #include <QtCore/QString>
+#include <QtCore/QStringList>
 #include <QtWidgets/QLabel>
+#include <QtWidgets/QTableWidget>
 
 #include "common/result.hpp"
 #include "controller/store/audit_trail.hpp"
@@ -67,6 +69,13 @@ Result<std::unique_ptr<store::AuditTrail>> open_audit_trail(store::SqliteStore& 
 bool store_has_users(store::SqliteStore& store);
 
 /// A number with a fixed count of decimals ("10.002").
+/// The store's UTF-8 text as a QString.
+QString q(const std::string& text);
+/// A read-only table with one selected row at a time and the given headers.
+QTableWidget* make_table(QWidget* parent, const QStringList& headers, const char* name);
+/// Milliseconds since 1970 of the store's ISO 8601 UTC text (NaN if unreadable).
+double epoch_ms(const std::string& iso_utc);
+
 QString fixed(double value, int decimals);
 /// A number with significant digits ("0.009852").
 QString significant(double value, int digits);

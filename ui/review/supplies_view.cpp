@@ -18,23 +18,6 @@ namespace veq::ui::review {
 
 namespace {
 
-QString q(const std::string& text) {
-  return QString::fromStdString(text);
-}
-
-QTableWidget* make_table(QWidget* parent, const QStringList& headers, const char* name) {
-  auto* table = new QTableWidget(parent);
-  table->setObjectName(name);
-  table->setColumnCount(static_cast<int>(headers.size()));
-  table->setHorizontalHeaderLabels(headers);
-  table->setEditTriggers(QAbstractItemView::NoEditTriggers);
-  table->setSelectionBehavior(QAbstractItemView::SelectRows);
-  table->setSelectionMode(QAbstractItemView::SingleSelection);
-  table->verticalHeader()->setVisible(false);
-  table->horizontalHeader()->setStretchLastSection(true);
-  return table;
-}
-
 /// Colour and weight of a status cell. The words carry the state; the colour
 /// only makes it quick to find.
 void style_status(QTableWidgetItem* item, Freshness state) {
@@ -58,11 +41,6 @@ void style_status(QTableWidgetItem* item, Freshness state) {
       item->setBackground(QColor(0xC8E6C9));
       break;
   }
-}
-
-double epoch_ms(const std::string& iso_utc) {
-  auto t = method::parse_utc(iso_utc);
-  return t ? static_cast<double>(t->time_since_epoch().count()) : std::nan("");
 }
 
 }  // namespace
