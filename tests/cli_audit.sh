@@ -26,6 +26,18 @@ printf 'admin-pass-1\n' | "$veq" method import "$method" --db "$db" --user admin
   --reason "three replicates" 2>/dev/null | grep -q "recorded in the audit trail"
 "$veq" audit verify --db "$db" | grep -q "audit trail intact: 4 records"
 "$veq" audit list --db "$db" | grep -q "change method"
+# A reviewer chooses another evaluation of run 1 (a reason is required): the
+# run gets that evaluation's results as new records, the endpoint its own.
+"$veq" evaluate --db "$db" --run 1 --method gran >/dev/null
+evaluation=$("$veq" show --db "$db" --run 1 | sed -n 's/^ *evaluation \([0-9]*\) by gran$/\1/p' | tail -1)
+refused "$veq" choose-evaluation --db "$db" --run 1 --evaluation "$evaluation" --user rev \
+  --reason "" <<<"reviewer-pass"
+chosen=$(printf 'reviewer-pass\n' | "$veq" choose-evaluation --db "$db" --run 1 \
+  --evaluation "$evaluation" --user rev --reason "the Gran lines fit both sides" 2>/dev/null)
+echo "$chosen" | grep -q "metal_concentration .* mmol/L (evaluation $evaluation)"
+gran_ml=$("$veq" show --db "$db" --run 1 | grep -A1 "evaluation $evaluation by gran" | tail -1 | awk '{print $2}')
+echo "$chosen" | grep -q "endpoint_volume *$gran_ml mL (evaluation $evaluation)"
+"$veq" audit verify --db "$db" | grep -q "audit trail intact: 5 records"
 # An analyst's edit of the sign-off record, past the database's own refusal.
 sqlite3 "$db" "DROP TRIGGER audit_records_are_unchangeable;
                UPDATE audit_records SET new_value = 'rejected' WHERE sequence = 3;"

@@ -7,6 +7,7 @@
 #include "controller/audit/audit.hpp"
 #include "controller/cli/cli_support.hpp"
 #include "controller/cli/commands.hpp"
+#include "controller/evaluation_results.hpp"
 #include "controller/store/audit_trail.hpp"
 #include "controller/store/sqlite_store.hpp"
 
@@ -106,6 +107,14 @@ void add_audit_commands(CLI::App& app) {
     fail_on(trail->choose_evaluation(o->user, password, o->run_id, o->evaluation_id, o->reason));
     std::printf("run %lld now uses evaluation %lld\n", static_cast<long long>(o->run_id),
                 static_cast<long long>(o->evaluation_id));
+    // Its results, as new records beside those of the earlier choice.
+    auto store = open_store_or_throw(o->db);
+    auto results = controller::add_results_for_evaluation(*store, o->run_id, o->evaluation_id);
+    if (!results)
+      throw CLI::Error("AuditError", results.error().message, 2);
+    for (const auto& r : *results)
+      std::printf("  %-26s %12.6g %s (evaluation %lld)\n", r.name.c_str(), r.value, r.unit.c_str(),
+                  static_cast<long long>(r.evaluation_id));
   });
 
   auto* audit = app.add_subcommand("audit", "the tamper-evident audit trail");

@@ -23,6 +23,7 @@
 #include <QtWidgets/QVBoxLayout>
 
 #include "controller/cli/run_export.hpp"
+#include "controller/evaluation_results.hpp"
 #include "controller/method/utc_time.hpp"
 #include "detection/evaluate.hpp"
 #include "ui/report/pdf_report.hpp"
@@ -885,10 +886,19 @@ Result<void> ResultsView::choose_evaluation(std::int64_t evaluation_id) {
     fail(chosen.error());
     return chosen.error();
   }
+  // The results of the chosen evaluation, as new records beside the old.
+  auto results = controller::add_results_for_evaluation(*store_, *run_id_, evaluation_id);
   (void)draw_run();
   fill_audit();
+  if (!results) {
+    fail(results.error());
+    return results.error();
+  }
   message_->show_info(
-      QStringLiteral("Run %1 now uses evaluation %2 (recorded).").arg(*run_id_).arg(evaluation_id));
+      QStringLiteral("Run %1 now uses evaluation %2 (recorded); %3 results from it.")
+          .arg(*run_id_)
+          .arg(evaluation_id)
+          .arg(results->size()));
   return {};
 }
 

@@ -1,0 +1,128 @@
+// A run's results from the evaluation a reviewer chose: new records, equal to
+// the titration's own formula at the chosen endpoint.
+#include <gtest/gtest.h>
+
+#include <filesystem>
+#include <string>
+
+#include "controller/evaluation_results.hpp"
+#include "controller/store/sqlite_store.hpp"
+#include "controller/titration.hpp"
+
+namespace veq::controller {
+namespace {
+
+namespace fs = std::filesystem;
+
+struct StoredRun {
+  fs::path dir;
+  std::unique_ptr<store::SqliteStore> store;
+  std::int64_t run_id = 0;
+  std::int64_t first_evaluation = 0;
+  SampleDescription sample;
+
+  StoredRun() {
+    dir = fs::temp_directory_path() /
+          ("veq-evaluation-results-" +
+           std::string(::testing::UnitTest::GetInstance()->current_test_info()->name()));
+    fs::remove_all(dir);
+    fs::create_directories(dir);
+    store = std::move(store::SqliteStore::open((dir / "runs.sqlite").string()).value());
+    // Calcium in 50.00 mL of water against 0.0100 mol/L EDTA (1:1), as a
+    // titration stores it: one evaluation and four results from it.
+    sample.sample_volume_ml = 50.0;
+    sample.titrant_conc_mol_per_l = 0.0100;
+    store::NewRun run;
+    run.sample_id = "spring";
+    run.method_json = "{}";
+    run.sample_volume_ml = sample.sample_volume_ml;
+    run.titrant_conc_mol_per_l = sample.titrant_conc_mol_per_l;
+    run_id = store->begin_run(run).value();
+    first_evaluation = evaluate(8.4265);
+    const auto r = compute_metal_result(8.4265, sample).value();
+    add(first_evaluation, "endpoint_volume", r.endpoint_ml, "mL");
+    add(first_evaluation, "metal_amount", r.amount_mmol, "mmol");
+    add(first_evaluation, "metal_concentration", r.conc_mmol_per_l, "mmol/L");
+    add(first_evaluation, "metal_mass_concentration", r.conc_mg_per_l, "mg/L");
+    EXPECT_TRUE(store->finish_run(run_id, store::RunStatus::completed, "done").has_value());
+  }
+  ~StoredRun() {
+    store.reset();
+    fs::remove_all(dir);
+  }
+  std::int64_t evaluate(std::optional<double> endpoint_ml) {
+    store::EvaluationRecord e;
+    e.method = endpoint_ml ? "gran" : "derivative";
+    e.options_json = "{}";
+    if (endpoint_ml)
+      e.endpoints.push_back(store::EndpointRecord{*endpoint_ml, 0.002, -39.0, 2600.0, ""});
+    return store->add_evaluation(run_id, e).value();
+  }
+  void add(std::int64_t evaluation, const char* name, double value, const char* unit) {
+    store::ResultRecord r;
+    r.run_id = run_id;
+    r.evaluation_id = evaluation;
+    r.name = name;
+    r.value = value;
+    r.unit = unit;
+    ASSERT_TRUE(store->add_result(r).has_value());
+  }
+};
+
+double value_of(const std::vector<store::ResultRecord>& rows, const std::string& name) {
+  for (const auto& r : rows)
+    if (r.name == name)
+      return r.value;
+  ADD_FAILURE() << "no result " << name;
+  return 0.0;
+}
+
+TEST(EvaluationResults, AChosenEvaluationGetsItsOwnResultRecords) {
+  StoredRun run;
+  const auto second = run.evaluate(8.4264);
+  auto added = add_results_for_evaluation(*run.store, run.run_id, second);
+  ASSERT_TRUE(added.has_value()) << added.error().message;
+  ASSERT_EQ(added->size(), 4u);
+  // By hand: 8.4264 mL x 0.0100 mmol/mL = 0.084264 mmol in 50.00 mL,
+  // 1.68528 mmol/L, times 40.078 g/mol (IUPAC standard atomic weight of
+  // calcium, the default of SampleDescription) = 67.54265 mg/L.
+  EXPECT_NEAR(value_of(*added, "endpoint_volume"), 8.4264, 1e-12);
+  EXPECT_NEAR(value_of(*added, "metal_amount"), 0.084264, 1e-12);
+  EXPECT_NEAR(value_of(*added, "metal_concentration"), 1.68528, 1e-11);
+  EXPECT_NEAR(value_of(*added, "metal_mass_concentration"), 1.68528 * 40.078, 1e-9);
+  // The same as the titration's own formula at that endpoint.
+  const auto direct = compute_metal_result(8.4264, run.sample).value();
+  EXPECT_NEAR(value_of(*added, "metal_mass_concentration"), direct.conc_mg_per_l,
+              1e-12 * direct.conc_mg_per_l);
+  for (const auto& r : *added)
+    EXPECT_EQ(r.evaluation_id, second);
+
+  // Nothing stored is changed: the first evaluation's results stay, and
+  // asking again adds nothing.
+  auto all = run.store->load_results(run.run_id);
+  ASSERT_TRUE(all.has_value());
+  EXPECT_EQ(all->size(), 8u);
+  EXPECT_NEAR(value_of(*all, "metal_amount"), 0.084265, 1e-12);  // the first row of that name
+  auto again = add_results_for_evaluation(*run.store, run.run_id, second);
+  ASSERT_TRUE(again.has_value());
+  EXPECT_EQ(again->size(), 4u);
+  EXPECT_EQ(run.store->load_results(run.run_id)->size(), 8u);
+}
+
+TEST(EvaluationResults, AnEvaluationWithoutEndpointOrOfAnotherRunIsRefusedByName) {
+  StoredRun run;
+  const auto empty = run.evaluate(std::nullopt);
+  auto refused = add_results_for_evaluation(*run.store, run.run_id, empty);
+  ASSERT_FALSE(refused.has_value());
+  EXPECT_NE(refused.error().message.find("found no endpoint"), std::string::npos)
+      << refused.error().message;
+  auto unknown = add_results_for_evaluation(*run.store, run.run_id, 999);
+  ASSERT_FALSE(unknown.has_value());
+  EXPECT_NE(unknown.error().message.find("evaluation 999 is not an evaluation of run"),
+            std::string::npos)
+      << unknown.error().message;
+  EXPECT_EQ(run.store->load_results(run.run_id)->size(), 4u);
+}
+
+}  // namespace
+}  // namespace veq::controller
