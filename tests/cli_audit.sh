@@ -38,6 +38,12 @@ echo "$chosen" | grep -q "metal_concentration .* mmol/L (evaluation $evaluation)
 gran_ml=$("$veq" show --db "$db" --run 1 | grep -A1 "evaluation $evaluation by gran" | tail -1 | awk '{print $2}')
 echo "$chosen" | grep -q "endpoint_volume *$gran_ml mL (evaluation $evaluation)"
 "$veq" audit verify --db "$db" | grep -q "audit trail intact: 5 records"
+# A whole series signed off at once: one audit record per titration it rests on.
+refused "$veq" sign-off --db "$db" --series 1 --user rev <<<"wrong password"
+signed=$(printf 'reviewer-pass\n' | "$veq" sign-off --db "$db" --series 1 --user rev 2>/dev/null)
+count=$(echo "$signed" | sed -n 's/^series 1: \([0-9]*\) runs signed off$/\1/p')
+[ "$count" -ge 10 ] && [ "$(echo "$signed" | grep -c "signed off by rev")" -eq "$count" ]
+"$veq" audit verify --db "$db" | grep -q "audit trail intact: $((5 + count)) records"
 # An analyst's edit of the sign-off record, past the database's own refusal.
 sqlite3 "$db" "DROP TRIGGER audit_records_are_unchangeable;
                UPDATE audit_records SET new_value = 'rejected' WHERE sequence = 3;"

@@ -1,8 +1,10 @@
 // `veq user add`, `veq sign-off`, `veq choose-evaluation` and `veq audit
 // verify|list`: users, signatures and the tamper-evident audit trail.
+#include <algorithm>
 #include <cstdio>
 #include <iostream>
 #include <string>
+#include <vector>
 
 #include "controller/audit/audit.hpp"
 #include "controller/cli/cli_support.hpp"
@@ -24,6 +26,7 @@ struct AuditOptions {
   std::string meaning = "reviewed and approved";
   std::string reason;
   std::int64_t run_id = 0;
+  std::int64_t series_id = 0;
   std::int64_t evaluation_id = 0;
 };
 
@@ -77,20 +80,60 @@ void add_audit_commands(CLI::App& app) {
   });
 
   auto* sign = app.add_subcommand(
-      "sign-off", "a reviewer signs a run's results off (password read from standard input)");
+      "sign-off",
+      "a reviewer signs a run's results off, or every run of a series (password read from "
+      "standard input)");
   add_db(sign);
-  sign->add_option("--run", o->run_id, "run number")->required();
+  auto* run_option = sign->add_option("--run", o->run_id, "run number");
+  auto* series_option = sign->add_option(
+      "--series", o->series_id,
+      "series number (veq series list): signs off every titration its entries rest on, "
+      "back-titrations included, one audit record each");
+  run_option->excludes(series_option);
   sign->add_option("--user", o->user, "the reviewer")->required();
   sign->add_option("--meaning", o->meaning, "what the signature means")->capture_default_str();
   sign->callback([o] {
+    if (o->run_id <= 0 && o->series_id <= 0)
+      throw CLI::ValidationError("sign-off", "give --run ID or --series ID");
+    std::vector<std::int64_t> runs;
+    if (o->run_id > 0) {
+      runs.push_back(o->run_id);
+    } else {
+      auto store = open_store_or_throw(o->db);
+      auto series = store->load_series(o->series_id);
+      if (!series)
+        throw CLI::Error("AuditError", series.error().message, 2);
+      auto entries = store->load_entries(o->series_id);
+      if (!entries)
+        throw CLI::Error("AuditError", entries.error().message, 2);
+      for (const auto& e : *entries) {
+        auto determinations = store->load_determinations(e.id);
+        if (!determinations)
+          throw CLI::Error("AuditError", determinations.error().message, 2);
+        for (const auto& d : *determinations)
+          for (const std::int64_t id : {d.run_id, d.second_run_id})
+            if (id > 0 && std::find(runs.begin(), runs.end(), id) == runs.end())
+              runs.push_back(id);
+      }
+      if (runs.empty()) {
+        throw CLI::Error("AuditError",
+                         "series " + std::to_string(o->series_id) + " has no titration to sign off",
+                         2);
+      }
+    }
     auto trail = open_trail(*o, false);
     const std::string password = read_password("password of " + o->user);
-    auto s = trail->sign_off(o->user, password, o->run_id, o->meaning);
-    if (!s)
-      throw CLI::Error("AuditError", s.error().message, 2);
-    std::printf("run %lld signed off by %s at %s (%s), audit record %lld\n",
-                static_cast<long long>(o->run_id), s->reviewer.c_str(), s->signed_utc.c_str(),
-                s->meaning.c_str(), static_cast<long long>(s->audit_sequence));
+    for (const std::int64_t run : runs) {
+      auto s = trail->sign_off(o->user, password, run, o->meaning);
+      if (!s)
+        throw CLI::Error("AuditError", "run " + std::to_string(run) + ": " + s.error().message, 2);
+      std::printf("run %lld signed off by %s at %s (%s), audit record %lld\n",
+                  static_cast<long long>(run), s->reviewer.c_str(), s->signed_utc.c_str(),
+                  s->meaning.c_str(), static_cast<long long>(s->audit_sequence));
+    }
+    if (o->series_id > 0)
+      std::printf("series %lld: %zu runs signed off\n", static_cast<long long>(o->series_id),
+                  runs.size());
   });
 
   auto* choose = app.add_subcommand(
