@@ -165,11 +165,28 @@ class CountingObserver final : public series::SeriesObserver {
 };
 
 struct Round {
+  /// In full for the first round only (compared with the same series run
+  /// alone); later rounds keep the status, the reason and the run ids, so
+  /// that the bench's own records do not grow the memory it measures.
   series::SeriesOutcome outcome;
+  std::vector<std::int64_t> run_ids;  ///< the runs the outcome lists, sorted, once each
+  long lock_mentions = 0;             ///< lock errors named by the series and its entries
   std::vector<std::int64_t> observed_per_run;
   std::int64_t observed_points = 0;
   long rss_kib_after = 0;
 };
+
+/// Lock errors a series outcome names (its reason and its entries' notes).
+long lock_mentions(const series::SeriesOutcome& outcome) {
+  std::string said = outcome.reason;
+  for (const auto& e : outcome.entries)
+    said += "\n" + e.note;
+  long n = 0;
+  for (const char* word : {"database is locked", "database table is locked", "busy"})
+    for (std::size_t at = said.find(word); at != std::string::npos; at = said.find(word, at + 1))
+      ++n;
+  return n;
+}
 
 struct Instrument {
   int index = 0;
@@ -219,6 +236,14 @@ void work(Instrument& in, double hours) {
         series::run_series(*parsed, in.texts.series, *rack.instruments, stores, options, &observer);
     round.observed_per_run = std::move(observer.per_run);
     round.observed_points = observer.total;
+    for (const auto& e : round.outcome.entries)
+      round.run_ids.insert(round.run_ids.end(), e.run_ids.begin(), e.run_ids.end());
+    std::sort(round.run_ids.begin(), round.run_ids.end());
+    round.run_ids.erase(std::unique(round.run_ids.begin(), round.run_ids.end()),
+                        round.run_ids.end());
+    round.lock_mentions = lock_mentions(round.outcome);
+    if (!in.rounds.empty())
+      round.outcome.entries = {};
     round.rss_kib_after = rss_kib();
     virtual_s = rack.clock.now_s();
     const bool completed = round.outcome.status == store::SeriesStatus::completed;
@@ -235,13 +260,8 @@ void work(Instrument& in, double hours) {
 /// problems to `problems`.
 std::int64_t check_points(store::SqliteStore& store, const Round& round, int instrument,
                           std::vector<std::string>& problems) {
-  std::vector<std::int64_t> run_ids;
-  for (const auto& e : round.outcome.entries)
-    run_ids.insert(run_ids.end(), e.run_ids.begin(), e.run_ids.end());
-  std::sort(run_ids.begin(), run_ids.end());
-  run_ids.erase(std::unique(run_ids.begin(), run_ids.end()), run_ids.end());
   std::vector<std::int64_t> stored_per_run;
-  for (auto id : run_ids) {
+  for (auto id : round.run_ids) {
     auto run = store.load_run(id);
     auto points = store.load_points(id);
     if (!run || !points) {
@@ -271,7 +291,7 @@ std::int64_t check_points(store::SqliteStore& store, const Round& round, int ins
     }
     ++at;
   }
-  return static_cast<std::int64_t>(run_ids.size());
+  return static_cast<std::int64_t>(round.run_ids.size());
 }
 
 bool same_outcome(const series::SeriesOutcome& a, const series::SeriesOutcome& b,
@@ -365,15 +385,8 @@ int main(int argc, char** argv) {
   // what the series and their entries report.
   long busy_during_load = g_busy_errors.load();
   for (const auto& in : instruments)
-    for (const auto& r : in.rounds) {
-      std::string said = r.outcome.reason;
-      for (const auto& e : r.outcome.entries)
-        said += "\n" + e.note;
-      for (const char* word : {"database is locked", "database table is locked", "busy"})
-        for (std::size_t at = said.find(word); at != std::string::npos;
-             at = said.find(word, at + 1))
-          ++busy_during_load;
-    }
+    for (const auto& r : in.rounds)
+      busy_during_load += r.lock_mentions;
 
   std::vector<std::string> problems;
   std::int64_t series_count = 0, runs = 0, observed = 0, completed = 0;
