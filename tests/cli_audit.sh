@@ -37,6 +37,8 @@ chosen=$(printf 'reviewer-pass\n' | "$veq" choose-evaluation --db "$db" --run 1 
 echo "$chosen" | grep -q "metal_concentration .* mmol/L (evaluation $evaluation)"
 gran_ml=$("$veq" show --db "$db" --run 1 | grep -A1 "evaluation $evaluation by gran" | tail -1 | awk '{print $2}')
 echo "$chosen" | grep -q "endpoint_volume *$gran_ml mL (evaluation $evaluation)"
+"$veq" show --db "$db" --run 1 | grep -q "results in use: those of evaluation $evaluation, chosen by rev"
+"$veq" show --db "$db" --run 1 | grep -q "metal_concentration .*(evaluation $evaluation, in use)"
 "$veq" audit verify --db "$db" | grep -q "audit trail intact: 5 records"
 # A whole series signed off at once: one audit record per titration it rests on.
 refused "$veq" sign-off --db "$db" --series 1 --user rev <<<"wrong password"

@@ -5,8 +5,10 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
+#include "controller/audit/audit.hpp"
 #include "controller/cli/cli_support.hpp"
 #include "controller/cli/commands.hpp"
+#include "controller/store/audit_trail.hpp"
 #include "controller/store/sqlite_store.hpp"
 
 namespace veq::cli {
@@ -59,9 +61,24 @@ void show_run(const StoreOptions& o) {
   if (!points || !evaluations || !results) {
     throw CLI::Error("StoreError", "cannot read run " + std::to_string(o.run_id), 2);
   }
+  // The evaluation the results use: the one a reviewer chose (audit trail),
+  // else the earliest evaluation with results (the one the run stored).
+  std::int64_t in_use = 0;
+  std::string chosen_by;
+  for (const auto& r : *results)
+    if (in_use == 0 || r.evaluation_id < in_use)
+      in_use = r.evaluation_id;
+  if (auto trail = store::AuditTrail::open(o.db, controller::audit::default_key_path(o.db).string(),
+                                           false)) {
+    if (auto choice = (*trail)->evaluation_choice(o.run_id); choice && *choice) {
+      in_use = (*choice)->evaluation_id;
+      chosen_by = (*choice)->user + " at " + (*choice)->chosen_utc + ": " + (*choice)->reason;
+    }
+  }
   if (o.json) {
     nlohmann::json out;
     out["run"] = run->id;
+    out["evaluation_in_use"] = in_use;
     out["sample_id"] = run->run.sample_id;
     out["status"] = store::run_status_name(run->status);
     out["end_reason"] = run->end_reason;
@@ -81,7 +98,11 @@ void show_run(const StoreOptions& o) {
       out["evaluations"].push_back(ev);
     }
     for (const auto& r : *results) {
-      out["results"].push_back({{"name", r.name}, {"value", r.value}, {"unit", r.unit}});
+      out["results"].push_back({{"name", r.name},
+                                {"value", r.value},
+                                {"unit", r.unit},
+                                {"evaluation", r.evaluation_id},
+                                {"in_use", r.evaluation_id == in_use}});
     }
     if (o.points) {
       for (const auto& p : *points) {
@@ -112,8 +133,14 @@ void show_run(const StoreOptions& o) {
                   p.volume_ml, p.uncertainty_ml, p.signal, p.steepness, p.flags.c_str());
     }
   }
+  if (!results->empty()) {
+    std::printf("  results in use: those of evaluation %lld%s%s\n", static_cast<long long>(in_use),
+                chosen_by.empty() ? " (as stored)" : ", chosen by ", chosen_by.c_str());
+  }
   for (const auto& r : *results) {
-    std::printf("  %-26s %12.5g %s\n", r.name.c_str(), r.value, r.unit.c_str());
+    std::printf("  %-26s %12.5g %-7s (evaluation %lld%s)\n", r.name.c_str(), r.value,
+                r.unit.c_str(), static_cast<long long>(r.evaluation_id),
+                r.evaluation_id == in_use ? ", in use" : "");
   }
   std::printf("  %zu points\n", points->size());
   if (o.points) {
