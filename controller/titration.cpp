@@ -501,15 +501,7 @@ class Titration {
   }
 
   Result<std::int64_t> store_evaluation(const detection::Evaluation& evaluation) {
-    store::EvaluationRecord record;
-    record.method = evaluation.method;
-    record.options_json = evaluation.options.dump();
-    record.flags = flag_names(evaluation.flags);
-    for (const auto& e : evaluation.endpoints) {
-      record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
-                                                       e.steepness, flag_names(e.flags)});
-    }
-    return store_.add_evaluation(outcome_.run_id, record);
+    return store_.add_evaluation(outcome_.run_id, evaluation_record(evaluation));
   }
 
   /// The endpoint of a single-metal titration is the largest break.
@@ -875,6 +867,18 @@ nlohmann::json to_json(const TitrationMethod& m) {
   if (m.use_signal_limit)
     j["signal_limit"] = m.signal_limit;
   return j;
+}
+
+store::EvaluationRecord evaluation_record(const detection::Evaluation& evaluation) {
+  store::EvaluationRecord record;
+  record.method = evaluation.method;
+  record.options_json = evaluation.options.dump();
+  record.flags = flag_names(evaluation.flags);
+  for (const auto& e : evaluation.endpoints) {
+    record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
+                                                     e.steepness, flag_names(e.flags)});
+  }
+  return record;
 }
 
 Result<MetalResult> compute_metal_result(double endpoint_ml, const SampleDescription& s) {

@@ -110,6 +110,10 @@ struct MetalResult {
 /// amount = V_endpoint * c_titrant * (metal per titrant); concentration = amount / V_sample.
 Result<MetalResult> compute_metal_result(double endpoint_ml, const SampleDescription& sample);
 
+/// An evaluation as the store keeps it (flag names comma-separated): what a
+/// run stores, `veq evaluate --run` adds and the desktop's re-evaluation adds.
+store::EvaluationRecord evaluation_record(const detection::Evaluation& evaluation);
+
 /// The devices a run uses and the clock it owns.
 struct Instruments {
   drivers::BuretteClient& burette;

@@ -13,6 +13,7 @@
 #include "controller/cli/commands.hpp"
 #include "controller/curve_csv.hpp"
 #include "controller/store/sqlite_store.hpp"
+#include "controller/titration.hpp"
 #include "detection/evaluate.hpp"
 
 namespace veq::cli {
@@ -180,24 +181,7 @@ void run_evaluate(const EvaluateOptions& o) {
   std::int64_t evaluation_id = 0;
   if (s) {
     // A new evaluation record; the raw points are never touched.
-    store::EvaluationRecord record;
-    record.method = evaluation->method;
-    record.options_json = evaluation->options.dump();
-    for (auto f : evaluation->flags) {
-      if (!record.flags.empty())
-        record.flags += ',';
-      record.flags += detection::quality_flag_name(f);
-    }
-    for (const auto& e : evaluation->endpoints) {
-      std::string flags;
-      for (auto f : e.flags) {
-        if (!flags.empty())
-          flags += ',';
-        flags += detection::quality_flag_name(f);
-      }
-      record.endpoints.push_back(
-          store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal, e.steepness, flags});
-    }
+    const store::EvaluationRecord record = controller::evaluation_record(*evaluation);
     auto id = s->add_evaluation(o.run_id, record);
     if (!id)
       throw CLI::Error("StoreError", id.error().message, 2);

@@ -25,6 +25,7 @@
 #include "controller/cli/run_export.hpp"
 #include "controller/evaluation_results.hpp"
 #include "controller/method/utc_time.hpp"
+#include "controller/titration.hpp"
 #include "detection/evaluate.hpp"
 #include "ui/report/pdf_report.hpp"
 #include "ui/report/report_from_store.hpp"
@@ -839,7 +840,7 @@ Result<void> ResultsView::start_reevaluation(const std::string& method,
       return;
     }
     // Added whatever is on display now: the evaluation belongs to its run.
-    auto id = store_ ? store_->add_evaluation(run_id, evaluation_record(*result))
+    auto id = store_ ? store_->add_evaluation(run_id, controller::evaluation_record(*result))
                      : Result<std::int64_t>(make_error(ErrorKind::invalid_input,
                                                        "the store was closed during evaluation"));
     if (!id) {

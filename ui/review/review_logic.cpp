@@ -18,16 +18,6 @@ std::string lower(std::string text) {
   return text;
 }
 
-std::string join_flags(const std::vector<detection::QualityFlag>& flags) {
-  std::string text;
-  for (auto f : flags) {
-    if (!text.empty())
-      text += ',';
-    text += detection::quality_flag_name(f);
-  }
-  return text;
-}
-
 std::string duration_words(std::chrono::milliseconds span) {
   const auto hours = std::chrono::duration_cast<std::chrono::hours>(span).count();
   if (hours >= 48)
@@ -87,18 +77,6 @@ Result<detection::Curve> stored_curve(store::RunStore& store, std::int64_t run_i
     return make_error(curve.error().kind,
                       "run " + std::to_string(run_id) + ": " + curve.error().message);
   return curve;
-}
-
-store::EvaluationRecord evaluation_record(const detection::Evaluation& evaluation) {
-  store::EvaluationRecord record;
-  record.method = evaluation.method;
-  record.options_json = evaluation.options.dump();
-  record.flags = join_flags(evaluation.flags);
-  for (const auto& e : evaluation.endpoints) {
-    record.endpoints.push_back(store::EndpointRecord{e.volume_ml, e.uncertainty_ml, e.signal,
-                                                     e.steepness, join_flags(e.flags)});
-  }
-  return record;
 }
 
 std::string signal_unit_text(int signal_kind) {

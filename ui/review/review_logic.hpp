@@ -43,10 +43,6 @@ bool run_matches(const store::RunRecord& run, const RunFilter& filter);
 /// or the curve's own validation error.
 Result<detection::Curve> stored_curve(store::RunStore& store, std::int64_t run_id);
 
-/// An evaluation as the store keeps it (flag names comma-separated), the form
-/// `veq evaluate --run` stores too.
-store::EvaluationRecord evaluation_record(const detection::Evaluation& evaluation);
-
 /// The unit of a run's signal for tables ("mV", "pM", "pH", "absorbance", "%").
 std::string signal_unit_text(int signal_kind);
 
