@@ -35,21 +35,15 @@ void padded_range(double lo, double hi, double* out_lo, double* out_hi) {
 }
 
 /// Widens [lo, hi] to whole multiples of a round step (1, 2 or 5 times a
-/// power of ten) giving about six intervals, and sets the axis to it.
+/// power of ten) giving about six intervals (round_range), and sets the axis to it.
 void set_round_range(QValueAxis* axis, double lo, double hi) {
-  const double raw_step = (hi - lo) / 6.0;
-  const double decade = std::pow(10.0, std::floor(std::log10(raw_step)));
-  double step = 10.0 * decade;
-  for (double m : {1.0, 2.0, 5.0}) {
-    if (m * decade >= raw_step) {
-      step = m * decade;
-      break;
-    }
+  const auto r = round_range(lo, hi);
+  if (!r) {
+    axis->setRange(lo, hi);
+    return;
   }
-  const double round_lo = std::floor(lo / step + 1e-9) * step;
-  const double round_hi = std::ceil(hi / step - 1e-9) * step;
-  axis->setRange(round_lo, round_hi);
-  axis->setTickCount(static_cast<int>(std::lround((round_hi - round_lo) / step)) + 1);
+  axis->setRange(r->lo, r->hi);
+  axis->setTickCount(r->ticks);
 }
 
 }  // namespace

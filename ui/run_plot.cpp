@@ -1,5 +1,6 @@
 #include "ui/run_plot.hpp"
 
+#include <cmath>
 #include <cstdio>
 #include <optional>
 
@@ -151,6 +152,26 @@ Result<RunPlot> build_run_plot(store::RunStore& store, std::int64_t run_id) {
   }
   plot.summary = summary;
   return plot;
+}
+
+std::optional<RoundRange> round_range(double lo, double hi) {
+  const double raw_step = (hi - lo) / 6.0;
+  if (!(raw_step > 0.0) || !std::isfinite(raw_step))
+    return std::nullopt;
+  const double decade = std::pow(10.0, std::floor(std::log10(raw_step)));
+  double step = 10.0 * decade;
+  for (double m : {1.0, 2.0, 5.0}) {
+    if (m * decade >= raw_step) {
+      step = m * decade;
+      break;
+    }
+  }
+  RoundRange r;
+  r.step = step;
+  r.lo = std::floor(lo / step + 1e-9) * step;
+  r.hi = std::ceil(hi / step - 1e-9) * step;
+  r.ticks = static_cast<int>(std::lround((r.hi - r.lo) / step)) + 1;
+  return r;
 }
 
 }  // namespace veq::ui

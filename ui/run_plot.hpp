@@ -4,6 +4,7 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -51,5 +52,16 @@ Result<RunPlot> build_run_plot(store::RunStore& store, std::int64_t run_id);
 
 /// One line per run for a list: "3  rinse-water-A  completed  2026-12-02 01:48".
 std::string run_list_label(const store::RunRecord& run);
+
+/// An axis range widened to whole multiples of a round step (1, 2 or 5 times
+/// a power of ten) giving about six intervals, for the desktop's charts.
+struct RoundRange {
+  double lo = 0.0;
+  double hi = 0.0;
+  double step = 0.0;
+  int ticks = 0;  ///< tick marks from lo to hi, both included
+};
+/// Nothing if hi - lo is not a positive finite span.
+std::optional<RoundRange> round_range(double lo, double hi);
 
 }  // namespace veq::ui

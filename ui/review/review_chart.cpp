@@ -15,6 +15,8 @@
 #include <QtGui/QPainter>
 #include <QtGui/QPen>
 
+#include "ui/run_plot.hpp"
+
 namespace veq::ui::review {
 
 struct ReviewChart::Parts {
@@ -51,23 +53,14 @@ struct Range {
 /// Widens [lo, hi] to whole multiples of a round step (1, 2 or 5 times a
 /// power of ten) giving about six intervals, as the run view's chart does.
 void set_round_range(QValueAxis* axis, double lo, double hi) {
-  const double raw_step = (hi - lo) / 6.0;
-  if (!(raw_step > 0.0) || !std::isfinite(raw_step)) {
+  const auto r = round_range(lo, hi);
+  if (!r) {
     axis->setRange(lo, hi);
     return;
   }
-  const double decade = std::pow(10.0, std::floor(std::log10(raw_step)));
-  double step = 10.0 * decade;
-  for (double m : {1.0, 2.0, 5.0}) {
-    if (m * decade >= raw_step) {
-      step = m * decade;
-      break;
-    }
-  }
-  const double round_lo = std::floor(lo / step + 1e-9) * step;
-  const double round_hi = std::ceil(hi / step - 1e-9) * step;
+  const double round_lo = r->lo, round_hi = r->hi, step = r->step;
   axis->setRange(round_lo, round_hi);
-  axis->setTickCount(static_cast<int>(std::lround((round_hi - round_lo) / step)) + 1);
+  axis->setTickCount(r->ticks);
   // As many decimals as the step needs, so that neighbouring labels differ.
   const double largest = std::max(std::abs(round_lo), std::abs(round_hi));
   if (largest >= 1e6 || (largest > 0.0 && largest < 1e-4)) {
