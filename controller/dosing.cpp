@@ -68,18 +68,21 @@ detection::Evaluation derivative_so_far(const CurveSoFar& c, double sample_volum
 
 /// Steps sized so that the signal moves by about target_signal_step, from the
 /// slope of the last step; bounded by the smallest and largest step and by the
-/// growth limit. Once the derivative method (the run's options) reports an
-/// endpoint with enough points past it for its local fits, the target is
-/// relaxed (kPastEndpointSignalFactor).
+/// growth limit. Once the derivative method (the run's options) reports the
+/// last expected endpoint with enough points past it for its local fits, the
+/// target is relaxed (kPastEndpointSignalFactor).
 class AdaptiveIncrements final : public DosingStrategy {
  public:
   AdaptiveIncrements(const DosingPlan& p, double sample_volume_ml,
-                     const detection::DerivativeOptions& detection)
-      : plan_(p), sample_volume_ml_(sample_volume_ml), detection_(detection) {}
+                     const detection::DerivativeOptions& detection, int endpoints)
+      : plan_(p),
+        sample_volume_ml_(sample_volume_ml),
+        detection_(detection),
+        endpoints_(static_cast<std::size_t>(std::max(1, endpoints))) {}
   DoseDecision next(const CurveSoFar& c) override {
     if (!past_endpoint_ && c.volume_ml.size() >= 5) {
       const auto ev = derivative_so_far(c, sample_volume_ml_, detection_);
-      if (!ev.endpoints.empty()) {
+      if (ev.endpoints.size() >= endpoints_) {
         const auto& ep = ev.endpoints.back();
         int past = 0;
         for (double x : c.volume_ml)
@@ -108,6 +111,7 @@ class AdaptiveIncrements final : public DosingStrategy {
   DosingPlan plan_;
   double sample_volume_ml_;
   detection::DerivativeOptions detection_;
+  std::size_t endpoints_;
   bool past_endpoint_ = false;
 };
 
@@ -524,12 +528,12 @@ Result<DosingPlan> dosing_plan_from_json(const json& j) {
 std::unique_ptr<DosingStrategy> make_dosing_strategy(const DosingPlan& plan,
                                                      double sample_volume_ml,
                                                      const detection::DerivativeOptions& detection,
-                                                     const EndpointJudge& judge) {
+                                                     const EndpointJudge& judge, int endpoints) {
   switch (plan.kind) {
     case DosingKind::fixed_increments:
       return std::make_unique<FixedIncrements>(plan);
     case DosingKind::adaptive_increments:
-      return std::make_unique<AdaptiveIncrements>(plan, sample_volume_ml, detection);
+      return std::make_unique<AdaptiveIncrements>(plan, sample_volume_ml, detection, endpoints);
     case DosingKind::approach_preset_signal:
       return std::make_unique<ApproachPresetSignal>(plan);
     case DosingKind::model_guided:

@@ -114,8 +114,13 @@ class DosingStrategy {
 /// break with the derivative method (`detection`) and judges the endpoint's
 /// uncertainty with the run's final endpoint method (`judge`; when that
 /// method fails on the curve so far, with the derivative method).
+/// `endpoints`: the breaks the curve is expected to pass (two metals bound in
+/// turn: 2); adaptive_increments keeps its small steps until the last of
+/// them. Strategies that decide their own end know one endpoint only
+/// (TitrationMethod::endpoint_count refuses more for them).
 std::unique_ptr<DosingStrategy> make_dosing_strategy(
     const DosingPlan& plan, double sample_volume_ml,
-    const detection::DerivativeOptions& detection = {}, const EndpointJudge& judge = {});
+    const detection::DerivativeOptions& detection = {}, const EndpointJudge& judge = {},
+    int endpoints = 1);
 
 }  // namespace veq::controller

@@ -55,6 +55,8 @@ constexpr std::size_t kOutlierMinDifferences = 4;
 // for a noisier stretch, still far below a spike.
 constexpr double kOutlierCapFactor = 4.0;
 constexpr std::size_t kOutlierCapPoints = 3;
+/// Most endpoints one curve may be expected to pass.
+constexpr int kMostEndpoints = 5;
 // Readings taken past the longest wait while the newest one is an outlier;
 // then the point is not taken at all and the run fails.
 constexpr int kOutlierExtraReadings = 10;
@@ -243,7 +245,8 @@ class Titration {
         control_(control),
         strategy_(
             make_dosing_strategy(method.dosing, sample.sample_volume_ml, method.detection,
-                                 EndpointJudge{method.endpoint_method, method.endpoint_options})) {}
+                                 EndpointJudge{method.endpoint_method, method.endpoint_options},
+                                 method.endpoint_count)) {}
 
   RunOutcome run() {
     store::NewRun record;
@@ -300,6 +303,18 @@ class Titration {
                                                       fixed(largest_step_ml(), 3) +
                                                       " mL exceeds the burette's largest dose of " +
                                                       fixed(burette->max_dose_ml, 3) + " mL");
+    }
+    if (method_.endpoint_count < 1 || method_.endpoint_count > kMostEndpoints) {
+      return make_error(ErrorKind::invalid_input,
+                        "the method expects " + std::to_string(method_.endpoint_count) +
+                            " endpoints; 1 to " + std::to_string(kMostEndpoints) + " are possible");
+    }
+    if (method_.endpoint_count > 1 && strategy_->decides_its_own_end()) {
+      return make_error(ErrorKind::invalid_input,
+                        std::string("dosing '") + dosing_kind_name(method_.dosing.kind) +
+                            "' ends the titration at its first endpoint; a curve with " +
+                            std::to_string(method_.endpoint_count) +
+                            " endpoints needs fixed or adaptive increments");
     }
     if (auto r = check_endpoint_method(method_); !r)
       return r.error();
@@ -427,7 +442,13 @@ class Titration {
     if (!derivative_id)
       return end_with_error(derivative_id.error());
     std::int64_t evaluation_id = *derivative_id;
-    std::optional<detection::Endpoint> endpoint = largest_break(by_derivative);
+    std::vector<detection::Endpoint> endpoints = expected_breaks(by_derivative);
+    const auto found_text = [&](const detection::Evaluation& ev) {
+      return method_.endpoint_count == 1
+                 ? std::string("found no endpoint")
+                 : "found " + std::to_string(ev.endpoints.size()) + " of the " +
+                       std::to_string(method_.endpoint_count) + " endpoints expected";
+    };
     if (method_.endpoint_method != "derivative") {
       auto chosen = detection::evaluate(*c, method_.endpoint_method, method_.endpoint_options);
       if (!chosen) {
@@ -438,41 +459,46 @@ class Titration {
         if (!chosen_id)
           return end_with_error(chosen_id.error());
         const auto doubtful = std::string(flag_names(doubtful_flags(chosen->flags)));
-        auto best = largest_break(*chosen);
-        if (best && doubtful.empty()) {
-          endpoint = best;
+        auto best = expected_breaks(*chosen);
+        if (!best.empty() && doubtful.empty()) {
+          endpoints = std::move(best);
           evaluation_id = *chosen_id;
-        } else if (best) {
+        } else if (!best.empty()) {
           // A fit that does not describe the curve does not give the result.
           say("the " + method_.endpoint_method + " method's evaluation is flagged " + doubtful +
               "; the endpoint is the derivative method's");
         } else {
-          say("the " + method_.endpoint_method +
-              " method found no endpoint; the endpoint is the derivative "
-              "method's");
+          say("the " + method_.endpoint_method + " method " + found_text(*chosen) +
+              "; the endpoint is the derivative method's");
         }
       }
     }
     if (method_.dosing.kind == DosingKind::approach_preset_signal) {
       // The endpoint of a titration to a preset signal is where it was held.
-      endpoint.reset();
+      endpoints.clear();
       if (strategy_endpoint_ml_ > 0.0) {
         detection::Endpoint e;
         e.volume_ml = strategy_endpoint_ml_;
         e.signal = method_.dosing.preset_signal;
         e.uncertainty_ml = inst_.burette.info().cylinder_ml /
                            std::max(1.0, inst_.burette.info().steps_per_cylinder);
-        endpoint = e;
+        endpoints.push_back(e);
       }
     }
     if (auto r = rinse(); !r)
       return end_with_error(r.error());
-    if (!endpoint) {
+    if (endpoints.empty()) {
       outcome_.status = store::RunStatus::failed;
-      outcome_.reason = "no endpoint found (" + stop_reason_ + ")";
+      outcome_.reason =
+          method_.endpoint_count == 1 || method_.dosing.kind == DosingKind::approach_preset_signal
+              ? "no endpoint found (" + stop_reason_ + ")"
+              : "no endpoint found: the derivative method " + found_text(by_derivative) + " (" +
+                    stop_reason_ + ")";
       finish(RunState::failed, outcome_.reason);
       return outcome_;
     }
+    const std::optional<detection::Endpoint> endpoint = endpoints.front();
+    outcome_.endpoints = endpoints;
     outcome_.endpoint = endpoint;
     auto result = compute_metal_result(endpoint->volume_ml, sample_);
     if (!result)
@@ -484,13 +510,26 @@ class Titration {
         {"metal_concentration", {result->conc_mmol_per_l, "mmol/L"}},
         {"metal_mass_concentration", {result->conc_mg_per_l, "mg/L"}},
     };
+    std::vector<store::ResultRecord> records;
     for (const auto& [name, value] : rows) {
       store::ResultRecord r;
-      r.run_id = outcome_.run_id;
-      r.evaluation_id = evaluation_id;
       r.name = name;
       r.value = value.first;
       r.unit = value.second;
+      records.push_back(r);
+    }
+    // The later endpoints of a curve with several: their volumes (the
+    // results of each metal are the method's to compute, from all of them).
+    for (std::size_t k = 1; k < endpoints.size(); ++k) {
+      store::ResultRecord r;
+      r.name = "endpoint_volume_" + std::to_string(k + 1);
+      r.value = endpoints[k].volume_ml;
+      r.unit = "mL";
+      records.push_back(r);
+    }
+    for (auto& r : records) {
+      r.run_id = outcome_.run_id;
+      r.evaluation_id = evaluation_id;
       if (auto stored = store_.add_result(r); !stored)
         return end_with_error(stored.error());
     }
@@ -504,16 +543,20 @@ class Titration {
     return store_.add_evaluation(outcome_.run_id, evaluation_record(evaluation));
   }
 
-  /// The endpoint of a single-metal titration is the largest break.
-  static std::optional<detection::Endpoint> largest_break(const detection::Evaluation& ev) {
-    if (ev.endpoints.empty())
-      return std::nullopt;
-    const detection::Endpoint* best = &ev.endpoints.front();
-    for (const auto& e : ev.endpoints) {
-      if (e.steepness > best->steepness)
-        best = &e;
-    }
-    return *best;
+  /// The method's expected endpoints: the `endpoint_count` largest breaks
+  /// in volume order (one: the largest break, the endpoint of a
+  /// single-metal titration); empty when fewer are found.
+  std::vector<detection::Endpoint> expected_breaks(const detection::Evaluation& ev) const {
+    const auto n = static_cast<std::size_t>(method_.endpoint_count);
+    if (ev.endpoints.size() < n)
+      return {};
+    std::vector<detection::Endpoint> by_steepness = ev.endpoints;
+    std::stable_sort(by_steepness.begin(), by_steepness.end(),
+                     [](const auto& a, const auto& b) { return a.steepness > b.steepness; });
+    by_steepness.resize(n);
+    std::sort(by_steepness.begin(), by_steepness.end(),
+              [](const auto& a, const auto& b) { return a.volume_ml < b.volume_ml; });
+    return by_steepness;
   }
 
   Result<void> rinse() {
@@ -731,7 +774,7 @@ class Titration {
     if (!c)
       return false;
     const auto evaluation = detection::find_endpoints_by_derivative(*c, method_.detection);
-    if (evaluation.endpoints.empty())
+    if (evaluation.endpoints.size() < static_cast<std::size_t>(method_.endpoint_count))
       return false;
     const auto& last = evaluation.endpoints.back();
     if (detection::has_flag(last.flags, detection::QualityFlag::few_points_after_endpoint)) {
@@ -849,6 +892,7 @@ nlohmann::json to_json(const TitrationMethod& m) {
       {"max_volume_ml", m.max_volume_ml},
       {"volume_past_endpoint_ml", m.volume_past_endpoint_ml},
       {"expected_endpoint_ml", m.expected_endpoint_ml},
+      {"endpoint_count", m.endpoint_count},
       {"time_limit_s", m.time_limit_s},
       {"vessel_capacity_ml", m.vessel_capacity_ml},
       {"dose_rate_ml_per_min", m.dose_rate_ml_per_min},

@@ -58,6 +58,12 @@ struct TitrationMethod {
   /// checks the reservoir before starting and stops `volume_past_endpoint_ml`
   /// past it even without a detected endpoint.
   double expected_endpoint_ml = 0.0;
+  /// Endpoints the curve passes one after the other (two metals bound in
+  /// turn: 2). The stop rule waits until the derivative method finds this
+  /// many and stops `volume_past_endpoint_ml` past the last; the outcome
+  /// keeps the steepest this many in volume order. 1 to 5; more than 1 only
+  /// with strategies that do not decide their own end.
+  int endpoint_count = 1;
   /// Stop when the signal passes this value in either direction (0 with
   /// use_signal_limit false: no limit).
   bool use_signal_limit = false;
@@ -163,7 +169,11 @@ struct RunOutcome {
   store::RunStatus status = store::RunStatus::failed;
   std::string reason;
   std::size_t point_count = 0;
+  /// The endpoint the result comes from: with one expected endpoint the
+  /// largest break, with more the first of `endpoints`.
   std::optional<detection::Endpoint> endpoint;
+  /// Every expected endpoint in volume order (TitrationMethod::endpoint_count).
+  std::vector<detection::Endpoint> endpoints;
   std::optional<MetalResult> result;
   bool burette_stopped = true;    ///< false only if a stop command could not be confirmed
   double titration_time_s = 0.0;  ///< from the first reading to the end of titrating, s

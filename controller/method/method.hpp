@@ -88,6 +88,12 @@ struct ResultRule {
   /// The titration stage the result is read from, 1 for the first; 0: the
   /// last stage (a one-stage method's only one).
   int stage = 0;
+  /// Which endpoint of its stage, 1 for the first in volume order, when the
+  /// stage's titration passes more than one (TitrateStep::endpoints: calcium
+  /// at the first break, magnesium at the second); 0: the stage's only one.
+  /// Counting from the previous endpoint then starts at the endpoint before
+  /// in the same curve.
+  int endpoint = 0;
   CountedFrom counted_from = CountedFrom::stage_start;
   /// Analyte of an earlier result of the method whose titrant volume is
   /// subtracted: the second metal as the difference (total - first). Empty:
@@ -145,12 +151,16 @@ struct TitrateStep {
   nlohmann::json dosing_options = nlohmann::json::object();
   double initial_volume_ml = 0.0;        ///< added at once before the first reading, mL
   double largest_volume_ml = 20.0;       ///< never dose beyond this burette reading, mL
-  double volume_past_endpoint_ml = 1.0;  ///< stop this far past the endpoint, mL
-  double time_limit_s = 3600.0;          ///< stop titrating after this long, s
-  double drift_limit_per_min = 1.0;      ///< settled when |drift| is below, signal units/min
-  double settling_window_s = 10.0;       ///< drift computed over this window, s
-  double shortest_wait_s = 3.0;          ///< after each dose, s
-  double longest_wait_s = 60.0;          ///< then the reading is taken as it is, s
+  double volume_past_endpoint_ml = 1.0;  ///< stop this far past the (last) endpoint, mL
+  /// Endpoints the curve passes, one after the other (two metals bound in
+  /// turn by the titrant: 2). The titration goes on until this many are
+  /// found and stops past the last; results name theirs (ResultRule::endpoint).
+  int endpoints = 1;
+  double time_limit_s = 3600.0;      ///< stop titrating after this long, s
+  double drift_limit_per_min = 1.0;  ///< settled when |drift| is below, signal units/min
+  double settling_window_s = 10.0;   ///< drift computed over this window, s
+  double shortest_wait_s = 3.0;      ///< after each dose, s
+  double longest_wait_s = 60.0;      ///< then the reading is taken as it is, s
   bool operator==(const TitrateStep&) const = default;
 };
 

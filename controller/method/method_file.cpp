@@ -84,6 +84,7 @@ TitrateStep read_titration(Reader& r) {
   t.initial_volume_ml = r.quantity("initial volume", kVolume, 0.0, 1000.0, 0.0);
   t.largest_volume_ml = r.quantity("largest volume", kVolume, 0.0, 1000.0, std::nullopt, true);
   t.volume_past_endpoint_ml = r.quantity("volume past endpoint", kVolume, 0.0, 100.0, 1.0);
+  t.endpoints = r.integer("endpoints", 1, 5, 1);
   t.time_limit_s = r.quantity("time limit", kTime, 0.0, 86400.0, 3600.0, true);
   t.drift_limit_per_min = r.quantity("drift limit", kDrift, 0.0, 1000.0, 1.0, true);
   t.settling_window_s = r.quantity("settling window", kTime, 0.0, 600.0, 10.0, true);
@@ -105,6 +106,7 @@ const std::vector<std::string_view> kTitrateKeys = {"kind",
                                                     "initial volume",
                                                     "largest volume",
                                                     "volume past endpoint",
+                                                    "endpoints",
                                                     "time limit",
                                                     "drift limit",
                                                     "settling window",
@@ -141,6 +143,7 @@ ResultRule read_result(Reader& r) {
     }
   }
   res.stage = r.integer("stage", 1, 100, 0);
+  res.endpoint = r.integer("endpoint", 1, 5, 0);
   const std::string from = r.choice("counted from", counted_from_names(), "stage start");
   for (CountedFrom c :
        {CountedFrom::stage_start, CountedFrom::previous_endpoint, CountedFrom::first_stage_start})
@@ -148,7 +151,7 @@ ResultRule read_result(Reader& r) {
       res.counted_from = c;
   res.less = r.text("less", "");
   r.finish({"analyte", "molar mass", "analyte per titrant", "unit", "lowest", "highest",
-            "largest replicate difference", "stage", "counted from", "less"});
+            "largest replicate difference", "stage", "endpoint", "counted from", "less"});
   return res;
 }
 
@@ -272,6 +275,14 @@ std::optional<std::string> direct_titrant(const Method& m, const std::vector<std
   return t ? std::optional<std::string>(t->titrant) : std::nullopt;
 }
 
+/// The endpoints a stage's titration passes (1-based stage).
+int stage_endpoints(const Method& m, const std::vector<std::size_t>& stages, int stage) {
+  const Step& step = m.steps[stages[static_cast<std::size_t>(stage - 1)]];
+  if (const auto* t = std::get_if<TitrateStep>(&step))
+    return t->endpoints;
+  return std::get<BackTitrateStep>(step).endpoints;
+}
+
 /// The result rules against the stages: each names a stage that exists,
 /// counts from a point that titrant of its own kind reaches, and subtracts
 /// only an earlier result of the same titrant.
@@ -296,9 +307,29 @@ void check_results(const Method& m, const Lines& lines, Errors& errors) {
     }
     const int stage = r.stage == 0 ? count : r.stage;
     const auto titrant = direct_titrant(m, stages, stage);
+    const int endpoints = stage_endpoints(m, stages, stage);
+    if (endpoints > 1 && r.endpoint == 0) {
+      errors.add(at("analyte"), "endpoint",
+                 "stage " + std::to_string(stage) + " passes " + std::to_string(endpoints) +
+                     " endpoints: say which one result '" + r.analyte +
+                     "' reads (endpoint = 1 to " + std::to_string(endpoints) + ")");
+      continue;
+    }
+    if (r.endpoint > endpoints) {
+      errors.add(at("endpoint"), "endpoint",
+                 "stage " + std::to_string(stage) + " passes " + std::to_string(endpoints) +
+                     (endpoints == 1 ? " endpoint" : " endpoints") +
+                     " (its titrate step's 'endpoints'), not " + std::to_string(r.endpoint));
+      continue;
+    }
+    // A later endpoint of the same curve comes after an earlier one of its
+    // own stage: counting from the previous endpoint stays in the stage.
+    const bool later_in_curve = r.endpoint >= 2;
     if (r.counted_from != CountedFrom::stage_start) {
-      const int first = r.counted_from == CountedFrom::previous_endpoint ? stage - 1 : 1;
-      if (stage < 2) {
+      const int first = r.counted_from == CountedFrom::previous_endpoint
+                            ? (later_in_curve ? stage : stage - 1)
+                            : 1;
+      if (stage < 2 && !(later_in_curve && r.counted_from == CountedFrom::previous_endpoint)) {
         errors.add(at("counted from"), "counted from",
                    std::string("'") + counted_from_name(r.counted_from) +
                        "' needs a stage before this result's stage 1");
@@ -417,6 +448,12 @@ void check_structure(const Method& m, const Lines& lines, Errors& errors) {
         errors.add(at("kind"), "kind",
                    "the excess added at line " + std::to_string(lines.field(excess, "kind")) +
                        " must be titrated back (kind = back titrate) before another titration");
+      if (s->endpoints > 1 &&
+          (s->dosing == "approach preset signal" || s->dosing == "model guided"))
+        errors.add(at("endpoints"), "endpoints",
+                   "dosing '" + s->dosing + "' ends the titration at its first endpoint; " +
+                       std::to_string(s->endpoints) +
+                       " endpoints need fixed or adaptive increments");
       unevaluated = i;
       largest_volume_ml = s->largest_volume_ml;
       any_titration = true;
@@ -435,6 +472,10 @@ void check_structure(const Method& m, const Lines& lines, Errors& errors) {
         errors.add(at("titrant"), "titrant",
                    "a back titration needs another titrant than the excess ('" + s->titrant + "')");
       }
+      if (s->endpoints != 1)
+        errors.add(
+            at("endpoints"), "endpoints",
+            "a back titration has one endpoint, the excess's, not " + std::to_string(s->endpoints));
       excess = kNoStep;
       unevaluated = i;
       largest_volume_ml = s->largest_volume_ml;
@@ -600,6 +641,8 @@ std::string write_method(const Method& m) {
     // was; stages are named once there is more to say.
     if (res.stage != 0)
       put("stage", std::to_string(res.stage));
+    if (res.endpoint != 0)
+      put("endpoint", std::to_string(res.endpoint));
     if (res.counted_from != CountedFrom::stage_start || results.size() > 1)
       put("counted from", counted_from_name(res.counted_from));
     if (!res.less.empty())
@@ -638,6 +681,8 @@ std::string write_method(const Method& m) {
       put("initial volume", number(t.initial_volume_ml) + " mL");
       put("largest volume", number(t.largest_volume_ml) + " mL");
       put("volume past endpoint", number(t.volume_past_endpoint_ml) + " mL");
+      if (t.endpoints != 1)
+        put("endpoints", std::to_string(t.endpoints));
       put("time limit", number(t.time_limit_s) + " s");
       put("drift limit", number(t.drift_limit_per_min) + drift_unit);
       put("settling window", number(t.settling_window_s) + " s");

@@ -49,6 +49,13 @@ struct StageMeasured {
   std::string titrated_with;
   double endpoint_ml = 0.0;  ///< burette reading from the stage's own start, mL
   double endpoint_uncertainty_ml = 0.0;
+  /// Every endpoint of the stage's curve in volume order, when it passes
+  /// more than one (TitrateStep::endpoints); else the one above.
+  struct Break {
+    double volume_ml = 0.0;
+    double uncertainty_ml = 0.0;
+  };
+  std::vector<Break> endpoints;
   double dosed_ml = 0.0;  ///< the stage's last recorded burette reading: all it dosed, mL
   bool back_titration = false;
   double excess_ml = 0.0;  ///< titrant added as an excess before the back-titration, mL
@@ -890,15 +897,16 @@ class SeriesRun {
     return std::nullopt;
   }
 
-  /// The rule of the result a stage (1-based) gives, for the run's record;
-  /// the first result if none names it.
+  /// The rule of the result a stage (1-based) gives at its first endpoint,
+  /// for the run's record; the first result if none names it.
   static const method::ResultRule& rule_of_stage(const method::Method& m, int stage) {
     const int stages = static_cast<int>(method::titration_stages(m.steps).size());
-    if ((m.result.stage == 0 ? stages : m.result.stage) == stage)
-      return m.result;
+    std::vector<const method::ResultRule*> rules{&m.result};
     for (const auto& r : m.more_results)
-      if ((r.stage == 0 ? stages : r.stage) == stage)
-        return r;
+      rules.push_back(&r);
+    for (const auto* r : rules)
+      if ((r->stage == 0 ? stages : r->stage) == stage && r->endpoint <= 1)
+        return *r;
     return m.result;
   }
 
@@ -919,6 +927,7 @@ class SeriesRun {
     tm.initial_volume_ml = s.initial_volume_ml;
     tm.max_volume_ml = s.largest_volume_ml;
     tm.volume_past_endpoint_ml = s.volume_past_endpoint_ml;
+    tm.endpoint_count = s.endpoints;
     tm.time_limit_s = s.time_limit_s;
     tm.settling.drift_limit_per_min = s.drift_limit_per_min;
     tm.settling.window_s = s.settling_window_s;
@@ -976,6 +985,10 @@ class SeriesRun {
     if (outcome.status == store::RunStatus::completed && outcome.endpoint) {
       stage.endpoint_ml = outcome.endpoint->volume_ml;
       stage.endpoint_uncertainty_ml = outcome.endpoint->uncertainty_ml;
+      for (const auto& e : outcome.endpoints)
+        stage.endpoints.push_back({e.volume_ml, e.uncertainty_ml});
+      if (stage.endpoints.empty())
+        stage.endpoints.push_back({stage.endpoint_ml, stage.endpoint_uncertainty_ml});
       // All the stage dosed: its last point, as the store keeps it. What
       // went past the endpoint stays in the vessel for a later stage.
       auto points = stores_.runs.load_points(outcome.run_id);
@@ -1112,30 +1125,71 @@ class SeriesRun {
       return out;
     }
     out.titrant = st.titrated_with;
+    // Each endpoint of a curve with several counts as a stage of its own
+    // that ends where it was reached: endpoint k of a stage reads
+    // E_k - E_(k-1) with all of it dosed there, and only the last goes on
+    // to what the stage dosed. Counting from a stage's start, or from the
+    // endpoint before (in the same curve or the stage before), is then
+    // titrant_between over these readings, the uncertainty of each endpoint
+    // its own (the absolute endpoint's).
     std::vector<controller::StageReading> readings;
-    for (const auto& g : got.stages)
-      readings.push_back({g.endpoint_ml, g.dosed_ml, g.endpoint_uncertainty_ml});
-    std::size_t from = static_cast<std::size_t>(stage);
+    std::vector<std::size_t> first_reading;  // per stage, 1-based index into readings
+    for (const auto& g : got.stages) {
+      first_reading.push_back(readings.size() + 1);
+      if (g.endpoints.size() <= 1) {
+        readings.push_back({g.endpoint_ml, g.dosed_ml, g.endpoint_uncertainty_ml});
+        continue;
+      }
+      double before = 0.0;
+      for (std::size_t k = 0; k < g.endpoints.size(); ++k) {
+        const double part = g.endpoints[k].volume_ml - before;
+        const bool last = k + 1 == g.endpoints.size();
+        readings.push_back(
+            {part, last ? g.dosed_ml - before : part, g.endpoints[k].uncertainty_ml});
+        before = g.endpoints[k].volume_ml;
+      }
+    }
+    const std::size_t endpoints_here = std::max<std::size_t>(1, st.endpoints.size());
+    const std::size_t which =
+        rule.endpoint == 0 ? endpoints_here : static_cast<std::size_t>(rule.endpoint);
+    if (which > endpoints_here)
+      return make_error(ErrorKind::invalid_input, "result '" + rule.analyte + "' needs endpoint " +
+                                                      std::to_string(which) + " of stage " +
+                                                      std::to_string(stage) + ", which found " +
+                                                      std::to_string(endpoints_here));
+    const std::size_t to = first_reading[static_cast<std::size_t>(stage - 1)] + which - 1;
+    std::size_t from = first_reading[static_cast<std::size_t>(stage - 1)];
     bool from_endpoint = false;
     if (rule.counted_from == method::CountedFrom::previous_endpoint) {
-      from = static_cast<std::size_t>(stage - 1);
+      from = to - 1;
       from_endpoint = true;
     } else if (rule.counted_from == method::CountedFrom::first_stage_start) {
       from = 1;
     }
-    auto counted =
-        controller::titrant_between(readings, from, from_endpoint, static_cast<std::size_t>(stage));
+    auto counted = controller::titrant_between(readings, from, from_endpoint, to);
     if (!counted)
       return counted.error();
     out.volume_ml = counted->volume_ml;
     out.uncertainty_ml = counted->uncertainty_ml;
+    if (st.endpoints.size() > 1) {
+      out.detail["endpoint"] = which;
+      out.detail["endpoint_ml"] = st.endpoints[which - 1].volume_ml;
+      out.detail["endpoint_uncertainty_ml"] = st.endpoints[which - 1].uncertainty_ml;
+    }
     if (!m.more_results.empty() || rule.counted_from != method::CountedFrom::stage_start) {
       out.detail["counted_from"] = method::counted_from_name(rule.counted_from);
       out.detail["counted_ml"] = counted->volume_ml;
       json stages = json::array();
-      for (const auto& g : got.stages)
-        stages.push_back(
-            {{"run_id", g.run_id}, {"endpoint_ml", g.endpoint_ml}, {"dosed_ml", g.dosed_ml}});
+      for (const auto& g : got.stages) {
+        json one = {{"run_id", g.run_id}, {"endpoint_ml", g.endpoint_ml}, {"dosed_ml", g.dosed_ml}};
+        if (g.endpoints.size() > 1) {
+          json all = json::array();
+          for (const auto& e : g.endpoints)
+            all.push_back(e.volume_ml);
+          one["endpoints_ml"] = all;
+        }
+        stages.push_back(one);
+      }
       out.detail["stages"] = stages;
     }
     return out;
@@ -1197,7 +1251,8 @@ class SeriesRun {
     }
     // The budget's titrant volume: a one-stage result keeps its endpoint as
     // read (as before stages existed), a counted one its counted volume.
-    const bool counted = less || rule.counted_from != method::CountedFrom::stage_start;
+    const bool counted =
+        less || rule.counted_from != method::CountedFrom::stage_start || rule.endpoint != 0;
     v.volume_ml =
         counted ? reacted_ml : got.stages[static_cast<std::size_t>(rv.stage - 1)].endpoint_ml;
     switch (entry.kind) {

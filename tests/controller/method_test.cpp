@@ -3,7 +3,10 @@
 // shared with controller/dosing.hpp.
 #include <gtest/gtest.h>
 
+#include <algorithm>
+#include <fstream>
 #include <set>
+#include <sstream>
 #include <string>
 #include <vector>
 
@@ -300,6 +303,97 @@ TEST(MethodFile, CountingOverStagesNeedsOneTitrant) {
                                    "with 'EDTA', stage 2 with 'zinc standard')"),
             std::string::npos)
       << m.error().message;
+}
+
+/// docs/examples/copper-magnesium-one-curve.method as text.
+std::string one_curve_text() {
+  std::ifstream in(std::string(VEQ_SOURCE_DIR) +
+                   "/docs/examples/copper-magnesium-one-curve.method");
+  std::ostringstream text;
+  text << in.rdbuf();
+  return text.str();
+}
+
+/// `text` with the first `from` replaced by `to`.
+std::string replaced(std::string text, const std::string& from, const std::string& to) {
+  const auto at = text.find(from);
+  EXPECT_NE(at, std::string::npos) << from;
+  if (at != std::string::npos)
+    text.replace(at, from.size(), to);
+  return text;
+}
+
+TEST(MethodFile, TwoEndpointsOfOneCurveRoundTrip) {
+  auto m = parse_method(one_curve_text(), "one curve");
+  ASSERT_TRUE(m.has_value()) << m.error().message;
+  const auto* titrate = std::get_if<TitrateStep>(&m->steps[1]);
+  ASSERT_NE(titrate, nullptr);
+  EXPECT_EQ(titrate->endpoints, 2);
+  const auto rules = result_rules(*m);
+  ASSERT_EQ(rules.size(), 3u);
+  EXPECT_EQ(rules[0].endpoint, 1);
+  EXPECT_EQ(rules[1].endpoint, 2);
+  EXPECT_EQ(rules[1].counted_from, CountedFrom::previous_endpoint);
+  EXPECT_EQ(rules[2].endpoint, 2);
+  EXPECT_EQ(rules[2].counted_from, CountedFrom::stage_start);
+  const std::string written = write_method(*m);
+  auto again = parse_method(written, "again");
+  ASSERT_TRUE(again.has_value()) << again.error().message << "\n" << written;
+  EXPECT_EQ(*again, *m);
+  EXPECT_EQ(write_method(*again), written);
+  // A one-endpoint titration writes no 'endpoints' nor 'endpoint' line, as before.
+  const std::string plain = write_method(parse_method(two_stages(kCalciumResult), "x").value());
+  EXPECT_EQ(plain.find("\nendpoints ="), std::string::npos) << plain;
+  EXPECT_EQ(plain.find("\nendpoint ="), std::string::npos) << plain;
+}
+
+TEST(MethodFile, TwoEndpointErrorsNameTheirLineAndField) {
+  const std::string text = one_curve_text();
+  const auto line_of = [&](const std::string& what, std::size_t from = 0) {
+    const auto at = text.find(what, from);
+    return 1 +
+           static_cast<int>(std::count(text.begin(), text.begin() + static_cast<long>(at), '\n'));
+  };
+  struct Case {
+    const char* what;
+    std::string text;
+    int line;
+    const char* field;
+    const char* says;
+  };
+  const std::vector<Case> cases = {
+      {"a result that does not say which endpoint",
+       replaced(text, "stage = 1\nendpoint = 1\n", "stage = 1\n"), line_of("analyte = copper\n"),
+       "endpoint",
+       "stage 1 passes 2 endpoints: say which one result 'copper' reads (endpoint = 1 to 2)"},
+      {"an endpoint the curve does not pass",
+       replaced(text, "endpoint = 2\ncounted from = previous",
+                "endpoint = 3\ncounted from = previous"),
+       line_of("endpoint = 2\ncounted from = previous"), "endpoint",
+       "stage 1 passes 2 endpoints (its titrate step's 'endpoints'), not 3"},
+      {"the previous endpoint of the first endpoint",
+       replaced(text, "endpoint = 1\ncounted from = stage start",
+                "endpoint = 1\ncounted from = previous endpoint"),
+       line_of("counted from = stage start"), "counted from",
+       "needs a stage before this result's stage 1"},
+      {"dosing that ends at its first endpoint",
+       replaced(text, "dosing = adaptive increments", "dosing = model guided"),
+       line_of("endpoints = 2"), "endpoints",
+       "dosing 'model guided' ends the titration at its first endpoint; 2 endpoints need fixed or "
+       "adaptive increments"},
+      {"more endpoints than a curve may have", replaced(text, "endpoints = 2", "endpoints = 6"),
+       line_of("endpoints = 2"), "endpoints", "out of range"},
+  };
+  for (const auto& c : cases) {
+    auto m = parse_method(c.text, "bad.method");
+    ASSERT_FALSE(m.has_value()) << c.what;
+    const std::string where =
+        "bad.method: line " + std::to_string(c.line) + ", field '" + c.field + "'";
+    EXPECT_NE(m.error().message.find(where), std::string::npos)
+        << c.what << ": " << m.error().message;
+    EXPECT_NE(m.error().message.find(c.says), std::string::npos)
+        << c.what << ": " << m.error().message;
+  }
 }
 
 struct BadCase {

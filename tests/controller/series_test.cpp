@@ -882,6 +882,151 @@ TEST(Series, TheSecondMetalAsTheDifferenceOfTotalAndFirst) {
   EXPECT_EQ(json::parse((*results)[3].detail_json)["less"], "iron");
 }
 
+// ---- two endpoints in one curve --------------------------------------------
+
+/// Invented scenario: digests of the Calloway foundry's copper-magnesium
+/// master alloy, 1.00 mmol/L copper and 0.50 mmol/L magnesium in 50 mL
+/// vessels at pH 9.3 in 0.02 mol/L ammonia, a copper electrode. The general
+/// engine with the shipped constants. EDTA labelled 0.0100 mol/L, truly
+/// 0.00990. Positions 4 and 5: a digest of pure copper (no magnesium).
+const char* kOneCurveScenario = R"json({
+  "name": "Calloway foundry, master alloy digests (invented)",
+  "seed": 47,
+  "titrant": {"name": "EDTA", "label_conc_mol_per_l": 0.0100, "true_conc_mol_per_l": 0.00990,
+              "pka": [0.0, 1.5, 2.00, 2.69, 6.13, 10.37]},
+  "burette": {"cylinder_ml": 20.0, "steps_per_cylinder": 40000, "max_rate_ml_per_min": 40.0,
+              "max_dose_ml": 20.0},
+  "electrode": {"electrode": "copper ion-selective (virtual)", "metal": "Cu", "e0_mv": 200.0,
+                "noise_mv": 0.05, "response_time_s": 1.0},
+  "balance": {"receives_burette": false},
+  "sample_changer": {"positions": 12},
+  "chemistry": {"sample_volume_ml": 50.0, "ph": 9.3,
+    "ligands": [{"name": "ammonia", "total_mol_per_l": 0.02}],
+    "metals": [{"name": "Cu", "conc_mol_per_l": 0.0010},
+               {"name": "Mg", "conc_mol_per_l": 0.0005}]},
+  "rack": [
+    {"position": 1, "label": "melt 3107"},
+    {"position": 2, "label": "melt 3107"},
+    {"position": 3, "label": "melt 3107"},
+    {"position": 4, "label": "copper only", "chemistry": {"sample_volume_ml": 50.0, "ph": 9.3,
+      "ligands": [{"name": "ammonia", "total_mol_per_l": 0.02}],
+      "metals": [{"name": "Cu", "conc_mol_per_l": 0.0010}]}},
+    {"position": 5, "label": "copper only", "chemistry": {"sample_volume_ml": 50.0, "ph": 9.3,
+      "ligands": [{"name": "ammonia", "total_mol_per_l": 0.02}],
+      "metals": [{"name": "Cu", "conc_mol_per_l": 0.0010}]}}
+  ]
+})json";
+
+/// The rack above with docs/examples/copper-magnesium-one-curve.method and
+/// a titer of 0.00990 mol/L determined before.
+struct OneCurveRack {
+  SeriesBench bench{kOneCurveScenario};
+  OneCurveRack() {
+    auto m = method::read_method_file(std::string(VEQ_SOURCE_DIR) +
+                                      "/docs/examples/copper-magnesium-one-curve.method");
+    EXPECT_TRUE(m.has_value()) << (m ? "" : m.error().message);
+    bench.prepare_lab(method::write_method(*m));
+    EXPECT_TRUE(method::record_titer(*bench.store, "EDTA 0.01 mol/L",
+                                     {0.009901, 0.009899, 0.009900},
+                                     method::parse_utc("2026-12-02T07:00:00Z").value())
+                    .has_value());
+  }
+};
+
+const std::string kOneCurveSeries =
+    "[series]\nname = Calloway master alloy\n"
+    "[sample]\nid = melt 3107\nmethod = copper and magnesium in master alloy digest\n"
+    "positions = 1, 2, 3\naliquots = 50 mL\n";
+
+TEST(Series, TwoEndpointsInOneCurveFindTheCopperAndTheMagnesium) {
+  OneCurveRack rack;
+  Printer printer;
+  auto outcome = rack.bench.run(kOneCurveSeries, &printer);
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* melt = find_entry(outcome, "melt 3107");
+  ASSERT_NE(melt, nullptr);
+  EXPECT_EQ(melt->status, "done") << melt->note;
+  ASSERT_EQ(melt->results.size(), 3u);
+  const auto* copper = find_result(*melt, "copper");
+  const auto* magnesium = find_result(*melt, "magnesium");
+  const auto* both = find_result(*melt, "copper and magnesium");
+  ASSERT_TRUE(copper && magnesium && both && copper->mean && magnesium->mean && both->mean);
+  // Hidden truths: 1.00 mmol/L x 63.546 g/mol = 63.546 mg/L of copper, 0.50
+  // mmol/L x 24.305 g/mol = 12.1525 mg/L of magnesium (IUPAC standard atomic
+  // weights), 1.50 mmol/L of both. Copper and the total within 0.5 %: each
+  // rests on one endpoint read to about 0.01 mL of 5 and 7.5 mL; magnesium
+  // within 1 %: its 2.5 mL are the difference of two endpoints.
+  EXPECT_NEAR(*copper->mean, 63.546, 63.546 * 0.005);
+  EXPECT_NEAR(*magnesium->mean, 12.1525, 12.1525 * 0.01);
+  EXPECT_NEAR(*both->mean, 1.50, 1.50 * 0.005);
+  std::printf(
+      "    copper %.3f mg/L (true 63.546), magnesium %.3f mg/L (true 12.153), both "
+      "%.4f mmol/L (true 1.5000)\n",
+      *copper->mean, *magnesium->mean, *both->mean);
+  // One titration per vessel, two vessels (the third position is a spare).
+  ASSERT_EQ(melt->run_ids.size(), 2u);
+  // Each run went on past the second endpoint, not only the first: its
+  // points reach 1 mL past the 7.5 mL of both metals, and it stored both
+  // endpoints.
+  for (auto run_id : melt->run_ids) {
+    auto points = rack.bench.store->load_points(run_id);
+    ASSERT_TRUE(points.has_value());
+    ASSERT_FALSE(points->empty());
+    EXPECT_GT(points->back().volume_ml, 7.5 / 0.99 + 0.9) << "run " << run_id;
+    auto results = rack.bench.store->load_results(run_id);
+    ASSERT_TRUE(results.has_value());
+    double first = 0.0, second = 0.0;
+    for (const auto& r : *results) {
+      if (r.name == "endpoint_volume")
+        first = r.value;
+      if (r.name == "endpoint_volume_2")
+        second = r.value;
+    }
+    // 1.00 and 1.50 mmol/L x 50 mL / 0.00990 mol/L = 5.051 and 7.576 mL.
+    EXPECT_NEAR(first, 0.050 / 0.00990, 0.03) << "run " << run_id;
+    EXPECT_NEAR(second, 0.075 / 0.00990, 0.03) << "run " << run_id;
+    std::printf("    run %lld: %zu points to %.3f mL, endpoints %.4f and %.4f mL\n",
+                static_cast<long long>(run_id), points->size(), points->back().volume_ml, first,
+                second);
+  }
+  // Every result of a vessel rests on the same run; the magnesium counts
+  // from the first endpoint to the second.
+  auto d = rack.bench.store->load_determinations(melt->entry_id);
+  ASSERT_TRUE(d.has_value());
+  ASSERT_EQ(d->size(), 6u);
+  const auto mg = json::parse((*d)[1].detail_json);
+  EXPECT_EQ(mg["result"], "magnesium");
+  EXPECT_EQ(mg["endpoint"], 2);
+  EXPECT_EQ(mg["counted_from"], "previous endpoint");
+  const auto endpoints = mg["stages"][0]["endpoints_ml"];
+  ASSERT_EQ(endpoints.size(), 2u);
+  EXPECT_NEAR(mg["counted_ml"].get<double>(),
+              endpoints[1].get<double>() - endpoints[0].get<double>(), 1e-12);
+  EXPECT_EQ((*d)[0].run_id, (*d)[1].run_id);
+  EXPECT_EQ((*d)[1].run_id, (*d)[2].run_id);
+}
+
+TEST(Series, ACurveWithOneOfItsTwoEndpointsFailsThatVessel) {
+  OneCurveRack rack;
+  auto outcome = rack.bench.run(kOneCurveSeries +
+                                "[sample]\nid = copper only\nmethod = copper and magnesium in "
+                                "master alloy digest\npositions = 4, 5\nreplicates = 1\n"
+                                "aliquots = 50 mL\n");
+  ASSERT_EQ(outcome.status, store::SeriesStatus::completed) << outcome.reason;
+  const auto* pure = find_entry(outcome, "copper only");
+  ASSERT_NE(pure, nullptr);
+  // No magnesium: the curve shows the copper's break only. The titration
+  // goes on to its largest volume waiting for the second, then fails with
+  // the count in its reason; the vessel is repeated once on its spare.
+  EXPECT_EQ(pure->status, "failed") << pure->note;
+  EXPECT_NE(pure->note.find("1 of the 2 endpoints expected"), std::string::npos) << pure->note;
+  ASSERT_EQ(pure->run_ids.size(), 2u);
+  auto points = rack.bench.store->load_points(pure->run_ids[0]);
+  ASSERT_TRUE(points.has_value());
+  EXPECT_NEAR(points->back().volume_ml, 20.0, 1e-6);  // the method's largest volume
+  EXPECT_EQ(find_entry(outcome, "melt 3107")->status, "done");
+}
+
 TEST(StageVolumes, TheSecondMetalCountsFromTheFirstEndpoint) {
   // By hand: stage 1 (pH 12, calcium) ends at 9.00 mL and doses 10.00 mL in
   // all; stage 2 (pH 10, magnesium) ends at 4.00 mL of its own counting.
