@@ -1,13 +1,26 @@
 #include "controller/evaluation_results.hpp"
 
+#include <algorithm>
 #include <cmath>
+#include <cstdlib>
 #include <string>
+
+#include <nlohmann/json.hpp>
 
 namespace veq::controller {
 
 namespace {
 
 constexpr const char* kEndpointVolume = "endpoint_volume";
+
+/// The endpoints a run expected (TitrationMethod::endpoint_count in the
+/// settings it stored; 1 when they do not say).
+int expected_endpoints(const std::string& method_json) {
+  const auto j = nlohmann::json::parse(method_json, nullptr, false);
+  if (j.is_object() && j.contains("endpoint_count") && j.at("endpoint_count").is_number_integer())
+    return std::max(1, j.at("endpoint_count").get<int>());
+  return 1;
+}
 
 }  // namespace
 
@@ -41,7 +54,25 @@ Result<std::vector<store::ResultRecord>> add_results_for_evaluation(store::RunSt
                       "evaluation " + std::to_string(evaluation_id) + " of " + run_name +
                           " found no endpoint; no result can be computed from it");
   }
-  const double new_endpoint_ml = chosen->endpoints.front().volume_ml;
+  // The run's own rule (controller/titration.cpp): the steepest breaks, as
+  // many as the run expected, in volume order; the first gives the result.
+  auto run = store.load_run(run_id);
+  if (!run)
+    return run.error();
+  const auto expected = static_cast<std::size_t>(expected_endpoints(run->run.method_json));
+  if (chosen->endpoints.size() < expected) {
+    return make_error(ErrorKind::invalid_input,
+                      "evaluation " + std::to_string(evaluation_id) + " of " + run_name +
+                          " found " + std::to_string(chosen->endpoints.size()) + " of the " +
+                          std::to_string(expected) + " endpoints the run expects");
+  }
+  std::vector<store::EndpointRecord> breaks = chosen->endpoints;
+  std::stable_sort(breaks.begin(), breaks.end(),
+                   [](const auto& a, const auto& b) { return a.steepness > b.steepness; });
+  breaks.resize(expected);
+  std::sort(breaks.begin(), breaks.end(),
+            [](const auto& a, const auto& b) { return a.volume_ml < b.volume_ml; });
+  const double new_endpoint_ml = breaks.front().volume_ml;
 
   // The results the run was stored with: those of the earliest evaluation
   // that has an endpoint volume among its results.
@@ -66,8 +97,20 @@ Result<std::vector<store::ResultRecord>> add_results_for_evaluation(store::RunSt
     store::ResultRecord next = r;
     next.id = 0;
     next.evaluation_id = evaluation_id;
-    next.value = r.name == kEndpointVolume ? new_endpoint_ml
-                                           : r.value * (new_endpoint_ml / first_endpoint_ml);
+    if (r.name == kEndpointVolume) {
+      next.value = new_endpoint_ml;
+    } else if (r.name.rfind(kEndpointVolume + std::string("_"), 0) == 0) {
+      // endpoint_volume_2, ...: the later endpoints of a curve with several.
+      const auto k =
+          std::strtoul(r.name.c_str() + std::string(kEndpointVolume).size() + 1, nullptr, 10);
+      if (k < 2 || k > breaks.size())
+        return make_error(ErrorKind::invalid_input,
+                          run_name + " has a result '" + r.name + "' that none of the " +
+                              std::to_string(breaks.size()) + " endpoints it expects gives");
+      next.value = breaks[k - 1].volume_ml;
+    } else {
+      next.value = r.value * (new_endpoint_ml / first_endpoint_ml);
+    }
     auto id = store.add_result(next);
     if (!id)
       return id.error();

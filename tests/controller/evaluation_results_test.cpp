@@ -4,6 +4,8 @@
 
 #include <filesystem>
 #include <string>
+#include <utility>
+#include <vector>
 
 #include "controller/evaluation_results.hpp"
 #include "controller/store/sqlite_store.hpp"
@@ -21,7 +23,8 @@ struct StoredRun {
   std::int64_t first_evaluation = 0;
   SampleDescription sample;
 
-  StoredRun() {
+  /// `method_json`: the titration settings the run stored.
+  explicit StoredRun(const std::string& method_json = "{}") {
     dir = fs::temp_directory_path() /
           ("veq-evaluation-results-" +
            std::string(::testing::UnitTest::GetInstance()->current_test_info()->name()));
@@ -34,7 +37,7 @@ struct StoredRun {
     sample.titrant_conc_mol_per_l = 0.0100;
     store::NewRun run;
     run.sample_id = "spring";
-    run.method_json = "{}";
+    run.method_json = method_json;
     run.sample_volume_ml = sample.sample_volume_ml;
     run.titrant_conc_mol_per_l = sample.titrant_conc_mol_per_l;
     run_id = store->begin_run(run).value();
@@ -49,6 +52,15 @@ struct StoredRun {
   ~StoredRun() {
     store.reset();
     fs::remove_all(dir);
+  }
+  /// An evaluation with these endpoints (volume mL, steepness mV/mL).
+  std::int64_t evaluate_breaks(const std::vector<std::pair<double, double>>& breaks) {
+    store::EvaluationRecord e;
+    e.method = "segments";
+    e.options_json = "{}";
+    for (const auto& [volume, steepness] : breaks)
+      e.endpoints.push_back(store::EndpointRecord{volume, 0.002, -39.0, steepness, ""});
+    return store->add_evaluation(run_id, e).value();
   }
   std::int64_t evaluate(std::optional<double> endpoint_ml) {
     store::EvaluationRecord e;
@@ -122,6 +134,31 @@ TEST(EvaluationResults, AnEvaluationWithoutEndpointOrOfAnotherRunIsRefusedByName
             std::string::npos)
       << unknown.error().message;
   EXPECT_EQ(run.store->load_results(run.run_id)->size(), 4u);
+}
+
+TEST(EvaluationResults, ARunWithTwoEndpointsTakesTheSteepestTwoInVolumeOrder) {
+  // A run that expected two endpoints (copper, then magnesium: 8.4265 and
+  // 12.0000 mL stored). The chosen evaluation found three breaks; as the run
+  // itself does (controller/titration.cpp), the two steepest are its
+  // endpoints in volume order, and the small step at 3 mL is not.
+  StoredRun run(R"({"endpoint_count": 2})");
+  run.add(run.first_evaluation, "endpoint_volume_2", 12.0, "mL");
+  const auto chosen = run.evaluate_breaks({{3.0, 50.0}, {8.5, 2600.0}, {12.2, 1800.0}});
+  auto added = add_results_for_evaluation(*run.store, run.run_id, chosen);
+  ASSERT_TRUE(added.has_value()) << added.error().message;
+  ASSERT_EQ(added->size(), 5u);
+  EXPECT_DOUBLE_EQ(value_of(*added, "endpoint_volume"), 8.5);
+  EXPECT_DOUBLE_EQ(value_of(*added, "endpoint_volume_2"), 12.2);
+  // The first endpoint's results follow it: 8.5 mL x 0.0100 mol/L (by hand).
+  EXPECT_NEAR(value_of(*added, "metal_amount"), 0.085, 1e-12);
+  // An evaluation with one break of the two the run expects gives none.
+  const auto one = run.evaluate_breaks({{8.5, 2600.0}});
+  auto refused = add_results_for_evaluation(*run.store, run.run_id, one);
+  ASSERT_FALSE(refused.has_value());
+  EXPECT_NE(refused.error().message.find("found 1 of the 2 endpoints the run expects"),
+            std::string::npos)
+      << refused.error().message;
+  EXPECT_EQ(run.store->load_results(run.run_id)->size(), 10u);
 }
 
 }  // namespace
