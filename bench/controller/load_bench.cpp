@@ -8,8 +8,11 @@
 // its virtual clock has passed the simulated hours asked for.
 //
 // Measures wall time, series, titration runs and points stored, the peak
-// resident memory (getrusage ru_maxrss) and the resident memory after each
-// round (memory must stay flat), and SQLite's busy/locked errors (must be 0:
+// resident memory (getrusage ru_maxrss) and, after each round, the resident
+// memory, the heap in use (glibc mallinfo2: bytes handed out and not freed,
+// in every arena) and SQLite's own memory (sqlite3_memory_used: page caches
+// and statements) (memory must stay flat: what grows must be a cache with a
+// bound), and SQLite's busy/locked errors (must be 0:
 // the store sets a busy timeout). Then checks that no point is lost (per run:
 // points table == the run's point_count == what the observer saw; overall:
 // points table == every point observed) and that every instrument's first
@@ -21,6 +24,7 @@
 //   build/bin/veq_load_bench [instruments, default 16] [simulated hours, default 24]
 //                            [database file, default veq-load.sqlite (replaced)]
 //                            [shared | each, default shared]
+#include <malloc.h>
 #include <sqlite3.h>
 #include <sys/resource.h>
 #include <unistd.h>
@@ -74,6 +78,18 @@ long rss_kib() {
   long size = 0, resident = 0;
   statm >> size >> resident;
   return resident * (sysconf(_SC_PAGESIZE) / 1024);
+}
+
+/// Heap in use now, KiB: what malloc has handed out and not had back, in
+/// every arena, small blocks and mmapped ones (glibc).
+long heap_in_use_kib() {
+  const struct mallinfo2 info = mallinfo2();
+  return static_cast<long>((info.uordblks + info.hblkhd) / 1024);
+}
+
+/// SQLite's own heap now, KiB (every connection of the process).
+long sqlite_kib() {
+  return static_cast<long>(sqlite3_memory_used() / 1024);
 }
 
 /// Peak resident memory of the process so far, KiB.
@@ -174,6 +190,8 @@ struct Round {
   std::vector<std::int64_t> observed_per_run;
   std::int64_t observed_points = 0;
   long rss_kib_after = 0;
+  long heap_kib_after = 0;
+  long sqlite_kib_after = 0;
 };
 
 /// Lock errors a series outcome names (its reason and its entries' notes).
@@ -242,9 +260,16 @@ void work(Instrument& in, double hours) {
     round.run_ids.erase(std::unique(round.run_ids.begin(), round.run_ids.end()),
                         round.run_ids.end());
     round.lock_mentions = lock_mentions(round.outcome);
-    if (!in.rounds.empty())
-      round.outcome.entries = {};
+    if (!in.rounds.empty()) {
+      // Given back, not only emptied (`entries = {}` keeps the capacity:
+      // about 5 KiB a round and instrument that looked like growth).
+      std::vector<series::EntryOutcome>().swap(round.outcome.entries);
+      round.observed_per_run.shrink_to_fit();
+      round.run_ids.shrink_to_fit();
+    }
     round.rss_kib_after = rss_kib();
+    round.heap_kib_after = heap_in_use_kib();
+    round.sqlite_kib_after = sqlite_kib();
     virtual_s = rack.clock.now_s();
     const bool completed = round.outcome.status == store::SeriesStatus::completed;
     in.rounds.push_back(std::move(round));
@@ -368,6 +393,7 @@ int main(int argc, char** argv) {
     in.store = opened_stores.back().get();
   }
   const long rss_before_kib = rss_kib();
+  const long heap_before_kib = heap_in_use_kib();
 
   const auto wall_start = std::chrono::steady_clock::now();
   {
@@ -420,10 +446,14 @@ int main(int argc, char** argv) {
 
   // Memory after each round: the largest resident size any instrument saw
   // on finishing its round k.
-  std::vector<long> rss_after_round(most_rounds, 0);
+  std::vector<long> rss_after_round(most_rounds, 0), heap_after_round(most_rounds, 0),
+      sqlite_after_round(most_rounds, 0);
   for (const auto& in : instruments)
-    for (std::size_t k = 0; k < in.rounds.size(); ++k)
+    for (std::size_t k = 0; k < in.rounds.size(); ++k) {
       rss_after_round[k] = std::max(rss_after_round[k], in.rounds[k].rss_kib_after);
+      heap_after_round[k] = std::max(heap_after_round[k], in.rounds[k].heap_kib_after);
+      sqlite_after_round[k] = std::max(sqlite_after_round[k], in.rounds[k].sqlite_kib_after);
+    }
 
   // Each instrument's first series again, alone, on a fresh file.
   int identical = 0;
@@ -471,11 +501,15 @@ int main(int argc, char** argv) {
               wall_s > 0 ? least_h * count / wall_s : 0.0);
   std::printf("| points stored per wall second | %.0f |\n",
               wall_s > 0 ? static_cast<double>(points_stored) / wall_s : 0.0);
-  std::printf("| resident memory before the series | %.1f MiB |\n", rss_before_kib / 1024.0);
+  std::printf("| resident memory before the series | %.1f MiB (heap in use %.1f MiB) |\n",
+              rss_before_kib / 1024.0, heap_before_kib / 1024.0);
   std::printf("| peak resident memory (ru_maxrss) | %.1f MiB |\n", peak_kib / 1024.0);
   for (std::size_t k = 0; k < rss_after_round.size(); ++k)
-    std::printf("| resident memory after round %zu | %.1f MiB |\n", k + 1,
-                rss_after_round[k] / 1024.0);
+    std::printf(
+        "| after round %zu: resident / heap in use / of it SQLite | %.1f / %.1f / %.1f MiB "
+        "|\n",
+        k + 1, rss_after_round[k] / 1024.0, heap_after_round[k] / 1024.0,
+        sqlite_after_round[k] / 1024.0);
   std::printf("| SQLite busy/locked errors | %ld |\n", busy_during_load);
   std::printf("| first series identical to the same series alone | %d of %d (%.1f s alone) |\n",
               identical, count, alone_s);
