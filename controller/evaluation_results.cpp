@@ -120,4 +120,24 @@ Result<std::vector<store::ResultRecord>> add_results_for_evaluation(store::RunSt
   return added;
 }
 
+std::vector<EvaluationUsed> evaluations_used(const std::string& determination_detail_json) {
+  std::vector<EvaluationUsed> out;
+  const auto detail = nlohmann::json::parse(determination_detail_json, nullptr, false);
+  if (!detail.is_object() || !detail.contains("traceability"))
+    return out;
+  const auto& trace = detail.at("traceability");
+  if (!trace.is_object() || !trace.contains("evaluations") || !trace.at("evaluations").is_array())
+    return out;
+  for (const auto& e : trace.at("evaluations")) {
+    if (!e.is_object() || !e.contains("run") || !e.contains("evaluation") ||
+        !e.at("run").is_number_integer() || !e.at("evaluation").is_number_integer())
+      continue;
+    const EvaluationUsed used{e.at("run").get<std::int64_t>(),
+                              e.at("evaluation").get<std::int64_t>()};
+    if (used.run_id > 0)
+      out.push_back(used);
+  }
+  return out;
+}
+
 }  // namespace veq::controller

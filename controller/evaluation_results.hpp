@@ -29,4 +29,21 @@ Result<std::vector<store::ResultRecord>> add_results_for_evaluation(store::RunSt
                                                                     std::int64_t run_id,
                                                                     std::int64_t evaluation_id);
 
+/// A run and the evaluation of it that a stored value rests on.
+struct EvaluationUsed {
+  std::int64_t run_id = 0;
+  std::int64_t evaluation_id = 0;
+  bool operator==(const EvaluationUsed&) const = default;
+};
+
+/// The evaluations a series determination rests on, one per titration run,
+/// from its detail (`traceability.evaluations`, written by the series
+/// runner). Empty for a detail without them (written before they were
+/// kept) or one that is not JSON. A series' values are computed once, when
+/// the series runs: a reviewer who later chooses another evaluation of one
+/// of these runs gets that run's results anew (add_results_for_evaluation),
+/// while the series' values stay as they were and are shown as resting on
+/// the evaluation that is no longer in use.
+std::vector<EvaluationUsed> evaluations_used(const std::string& determination_detail_json);
+
 }  // namespace veq::controller

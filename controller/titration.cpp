@@ -499,6 +499,7 @@ class Titration {
     }
     const std::optional<detection::Endpoint> endpoint = endpoints.front();
     outcome_.endpoints = endpoints;
+    outcome_.evaluation_id = evaluation_id;
     outcome_.endpoint = endpoint;
     auto result = compute_metal_result(endpoint->volume_ml, sample_);
     if (!result)

@@ -174,6 +174,8 @@ struct RunOutcome {
   std::optional<detection::Endpoint> endpoint;
   /// Every expected endpoint in volume order (TitrationMethod::endpoint_count).
   std::vector<detection::Endpoint> endpoints;
+  /// The stored evaluation the endpoints and results come from (0: none).
+  std::int64_t evaluation_id = 0;
   std::optional<MetalResult> result;
   bool burette_stopped = true;    ///< false only if a stop command could not be confirmed
   double titration_time_s = 0.0;  ///< from the first reading to the end of titrating, s

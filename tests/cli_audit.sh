@@ -39,6 +39,11 @@ gran_ml=$("$veq" show --db "$db" --run 1 | grep -A1 "evaluation $evaluation by g
 echo "$chosen" | grep -q "endpoint_volume *$gran_ml mL (evaluation $evaluation)"
 "$veq" show --db "$db" --run 1 | grep -q "results in use: those of evaluation $evaluation, chosen by rev"
 "$veq" show --db "$db" --run 1 | grep -q "metal_concentration .*(evaluation $evaluation, in use)"
+# The series' values stay as they were computed, and those resting on run 1
+# say that it now uses another evaluation.
+"$veq" series show --db "$db" --series 1 |
+  grep -q "run 1 now uses evaluation $evaluation (chosen by rev at .*: the Gran lines fit both sides); this value rests on evaluation [0-9]* and is not recomputed"
+"$veq" series show --db "$db" --series 1 --json | grep -q "\"evaluation_in_use\": $evaluation"
 "$veq" audit verify --db "$db" | grep -q "audit trail intact: 5 records"
 # A whole series signed off at once: one audit record per titration it rests on.
 refused "$veq" sign-off --db "$db" --series 1 --user rev <<<"wrong password"

@@ -5,7 +5,9 @@
 #include <filesystem>
 #include <fstream>
 #include <iostream>
+#include <map>
 #include <memory>
+#include <optional>
 #include <sstream>
 #include <string>
 
@@ -16,6 +18,7 @@
 #include "controller/cli/commands.hpp"
 #include "controller/cli/simulated_rack.hpp"
 #include "controller/cli/stop_after_interruption.hpp"
+#include "controller/evaluation_results.hpp"
 #include "controller/method/method_file.hpp"
 #include "controller/method/stored_methods.hpp"
 #include "controller/method/titer.hpp"
@@ -138,6 +141,20 @@ void show_series(const std::string& db, std::int64_t id, bool json_out) {
                         {"finished_utc", s->finished_utc},
                         {"software_version", s->software_version},
                         {"entries", nlohmann::json::array()}};
+  // The evaluation a reviewer chose later for a run, if any (audit trail):
+  // values that rest on another one are shown as such.
+  auto trail = store::AuditTrail::open(db, controller::audit::default_key_path(db).string(), false);
+  std::map<std::int64_t, std::optional<store::EvaluationChoice>> choices;
+  const auto choice_for = [&](std::int64_t run_id) {
+    if (!choices.count(run_id)) {
+      std::optional<store::EvaluationChoice> chosen;
+      if (trail)
+        if (auto c = (*trail)->evaluation_choice(run_id); c && *c)
+          chosen = **c;
+      choices[run_id] = chosen;
+    }
+    return choices.at(run_id);
+  };
   if (!json_out)
     std::printf("series %lld '%s': %s (%s)\nstarted %s, ended %s, veq %s\n\n",
                 static_cast<long long>(s->id), s->name.c_str(),
@@ -164,6 +181,17 @@ void show_series(const std::string& db, std::int64_t id, bool json_out) {
       std::printf("\n");
     }
     for (const auto& d : *determinations) {
+      nlohmann::json changed = nlohmann::json::array();
+      for (const auto& used : controller::evaluations_used(d.detail_json)) {
+        const auto chosen = choice_for(used.run_id);
+        if (chosen && chosen->evaluation_id != used.evaluation_id)
+          changed.push_back({{"run", used.run_id},
+                             {"rests_on_evaluation", used.evaluation_id},
+                             {"evaluation_in_use", chosen->evaluation_id},
+                             {"chosen_by", chosen->user},
+                             {"chosen_utc", chosen->chosen_utc},
+                             {"reason", chosen->reason}});
+      }
       je["determinations"].push_back(
           {{"replicate", d.replicate},
            {"position", d.position},
@@ -173,6 +201,7 @@ void show_series(const std::string& db, std::int64_t id, bool json_out) {
            {"unit", d.unit},
            {"counted", d.counted},
            {"flags", d.flags},
+           {"evaluation_changed", changed},
            {"detail", nlohmann::json::parse(d.detail_json, nullptr, false)}});
       if (!json_out) {
         std::printf("    position %3d", d.position);
@@ -186,6 +215,15 @@ void show_series(const std::string& db, std::int64_t id, bool json_out) {
           std::printf("  %12.6g %s%s%s", d.value, d.unit.c_str(), d.flags.empty() ? "" : "  ",
                       d.flags.c_str());
         std::printf("\n");
+        for (const auto& c : changed)
+          std::printf(
+              "      run %lld now uses evaluation %lld (chosen by %s at %s: %s); this "
+              "value rests on evaluation %lld and is not recomputed\n",
+              static_cast<long long>(c["run"].get<std::int64_t>()),
+              static_cast<long long>(c["evaluation_in_use"].get<std::int64_t>()),
+              c["chosen_by"].get<std::string>().c_str(), c["chosen_utc"].get<std::string>().c_str(),
+              c["reason"].get<std::string>().c_str(),
+              static_cast<long long>(c["rests_on_evaluation"].get<std::int64_t>()));
       }
     }
     for (const auto& r : *results) {

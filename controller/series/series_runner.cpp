@@ -46,6 +46,7 @@ Failure device_failure(const std::string& what, const Error& e) {
 /// titrant step with its back titrate step).
 struct StageMeasured {
   std::int64_t run_id = 0;
+  std::int64_t evaluation_id = 0;  ///< the run's evaluation its endpoints come from
   std::string titrated_with;
   double endpoint_ml = 0.0;  ///< burette reading from the stage's own start, mL
   double endpoint_uncertainty_ml = 0.0;
@@ -967,6 +968,7 @@ class SeriesRun {
         controller::run_titration(instruments, stores_.runs, sample, tm, observer_, &control);
     StageMeasured stage;
     stage.run_id = outcome.run_id;
+    stage.evaluation_id = outcome.evaluation_id;
     stage.titrated_with = s.titrant;
     stage.back_titration = back_titration;
     if (back_titration) {
@@ -1053,6 +1055,12 @@ class SeriesRun {
     t["runs"] = {got.run_id(0), got.run_id(1)};
     for (std::size_t k = 2; k < got.stages.size(); ++k)
       t["runs"].push_back(got.run_id(k));
+    // The evaluation each run's endpoints came from: a reviewer who later
+    // chooses another one for a run sees which values rest on the old one
+    // (controller::evaluations_used, `veq series show`).
+    t["evaluations"] = json::array();
+    for (const auto& g : got.stages)
+      t["evaluations"].push_back({{"run", g.run_id}, {"evaluation", g.evaluation_id}});
     t["software_version"] = kVersion;
     return t;
   }

@@ -161,5 +161,19 @@ TEST(EvaluationResults, ARunWithTwoEndpointsTakesTheSteepestTwoInVolumeOrder) {
   EXPECT_EQ(run.store->load_results(run.run_id)->size(), 10u);
 }
 
+TEST(EvaluationResults, TheEvaluationsADeterminationRestsOnAreReadFromItsDetail) {
+  // As the series runner writes them (traceability.evaluations), one per
+  // titration run of the determination; entries that are not a run and an
+  // evaluation are left out, and a detail without them gives none.
+  const std::vector<EvaluationUsed> two = {{12, 31}, {13, 34}};
+  EXPECT_EQ(evaluations_used(R"({"traceability": {"evaluations": [{"run": 12, "evaluation": 31},
+            {"run": 13, "evaluation": 34}, {"run": "x", "evaluation": 1}, {"run": 0,
+            "evaluation": 0}]}})"),
+            two);
+  EXPECT_TRUE(evaluations_used(R"({"traceability": {"runs": [12, 0]}})").empty());
+  EXPECT_TRUE(evaluations_used("not json").empty());
+  EXPECT_TRUE(evaluations_used(R"([1, 2])").empty());
+}
+
 }  // namespace
 }  // namespace veq::controller

@@ -14,6 +14,7 @@
 
 #include "common/version.hpp"
 #include "controller/cli/demo_data.hpp"
+#include "controller/evaluation_results.hpp"
 #include "controller/lab_checks.hpp"
 #include "controller/results.hpp"
 #include "controller/series/weighing.hpp"
@@ -1004,6 +1005,14 @@ TEST(Series, TwoEndpointsInOneCurveFindTheCopperAndTheMagnesium) {
               endpoints[1].get<double>() - endpoints[0].get<double>(), 1e-12);
   EXPECT_EQ((*d)[0].run_id, (*d)[1].run_id);
   EXPECT_EQ((*d)[1].run_id, (*d)[2].run_id);
+  // Each value names the evaluation its endpoints came from: the run's
+  // derivative evaluation, the first it stored.
+  auto evaluations = rack.bench.store->load_evaluations((*d)[0].run_id);
+  ASSERT_TRUE(evaluations.has_value());
+  ASSERT_FALSE(evaluations->empty());
+  const std::vector<controller::EvaluationUsed> used = {{(*d)[0].run_id, evaluations->front().id}};
+  EXPECT_EQ(controller::evaluations_used((*d)[0].detail_json), used);
+  EXPECT_EQ(controller::evaluations_used((*d)[2].detail_json), used);
 }
 
 TEST(Series, ACurveWithOneOfItsTwoEndpointsFailsThatVessel) {
