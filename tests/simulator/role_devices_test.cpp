@@ -385,7 +385,7 @@ struct RoleCase {
 };
 
 template <typename R>
-std::optional<Error> error_of(const Result<R>& r) {
+std::optional<Error> role_error_of(const Result<R>& r) {
   if (r)
     return std::nullopt;
   return r.error();
@@ -395,23 +395,23 @@ std::vector<RoleCase> every_role() {
   auto set = [](VirtualDevice& d, FaultPlan p) { d.set_fault(p); };
   return {
       {"burette", [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.burette_line(); },
-       set, [](Roles& r) { return error_of(r.burette->status()); }},
+       set, [](Roles& r) { return role_error_of(r.burette->status()); }},
       {"electrode",
        [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.electrode_line(); }, set,
-       [](Roles& r) { return error_of(r.sensor->read()); }},
+       [](Roles& r) { return role_error_of(r.sensor->read()); }},
       {"doser",
        [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.auxiliary_doser_line(); }, set,
-       [](Roles& r) { return error_of(r.doser->status()); }},
+       [](Roles& r) { return role_error_of(r.doser->status()); }},
       {"photometer",
        [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.photometer_line(); }, set,
-       [](Roles& r) { return error_of(r.photometer->read()); }},
+       [](Roles& r) { return role_error_of(r.photometer->read()); }},
       {"balance", [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.balance_line(); },
-       set, [](Roles& r) { return error_of(r.balance->read()); }},
+       set, [](Roles& r) { return role_error_of(r.balance->read()); }},
       {"stirrer", [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.stirrer_line(); },
-       set, [](Roles& r) { return error_of(r.stirrer->status()); }},
+       set, [](Roles& r) { return role_error_of(r.stirrer->status()); }},
       {"changer",
        [](SimulatedBench& b) -> drivers::MemoryTransport& { return b.sample_changer_line(); }, set,
-       [](Roles& r) { return error_of(r.changer->status()); }},
+       [](Roles& r) { return role_error_of(r.changer->status()); }},
   };
 }
 

@@ -34,7 +34,7 @@ const char* kScenario = R"json({"seed": 5,
     "blank_metal": "Zn"}})json";
 
 template <typename F>
-double steepest_ml(F&& f, double from_ml, double to_ml, double step_ml) {
+double two_stage_steepest_ml(F&& f, double from_ml, double to_ml, double step_ml) {
   double best = from_ml;
   double best_slope = -1.0;
   for (double v = from_ml + step_ml; v < to_ml; v += step_ml) {
@@ -47,13 +47,13 @@ double steepest_ml(F&& f, double from_ml, double to_ml, double step_ml) {
   return best;
 }
 
-struct Host {
+struct TwoStageHost {
   drivers::VirtualClock clock;
   std::unique_ptr<SimulatedBench> bench;
   std::unique_ptr<drivers::DeviceLink> doser_link;
   std::unique_ptr<drivers::AuxiliaryDoserClient> doser;
 
-  explicit Host(const std::string& text) {
+  explicit TwoStageHost(const std::string& text) {
     auto s = parse_scenario(text, "two stages");
     EXPECT_TRUE(s.has_value()) << (s ? "" : s.error().message);
     bench = std::make_unique<SimulatedBench>(*s, clock);
@@ -65,7 +65,7 @@ struct Host {
 };
 
 TEST(TwoStages, BaseFromTheDoserMovesTheFixedPhOfTheGeneralEngine) {
-  Host h(kScenario);
+  TwoStageHost h(kScenario);
   EXPECT_NEAR(h.bench->truths().vessel_ph, 2.0, 1e-12);
   // 0.7 mL of 1 mol/L base = 7e-4 mol over 2e-4 mol/pH: 2.0 + 3.5 = 5.5.
   ASSERT_TRUE(h.doser->add(drivers::Reagent::base, 0.7, 10.0).has_value());
@@ -73,21 +73,21 @@ TEST(TwoStages, BaseFromTheDoserMovesTheFixedPhOfTheGeneralEngine) {
 }
 
 TEST(TwoStages, EachMetalBreaksAtItsOwnPh) {
-  Host h(kScenario);
+  TwoStageHost h(kScenario);
   const auto e = [&](double v) { return h.bench->electrode().equilibrium_potential_mv(v); };
   // Hidden truths: Fe 1.00e-3 x 50 / 0.01 = 5.00 mL; Zn 1.20e-3 x 50 / 0.01
   // = 6.00 mL more.
   // At pH 2 only iron reacts: log K'(FeY) about 11.5 against about 4.1 for
   // zinc (log K 25.1 and 16.5 with their MHY complexes, alpha(Y4-) 10^-13.4
   // at pH 2: Harris 8th ed., Table 11-2 and Section 11-2).
-  EXPECT_NEAR(steepest_ml(e, 3.0, 7.5, 0.002), 5.0, 0.01);
+  EXPECT_NEAR(two_stage_steepest_ml(e, 3.0, 7.5, 0.002), 5.0, 0.01);
   EXPECT_GT(e(4.5) - e(5.5), 50.0);  // the break: tens of mV at 19.7 mV per decade of Fe3+
   // No second break at pH 2 where the zinc's would be.
   EXPECT_LT(std::fabs(e(10.5) - e(11.5)), 10.0);
   ASSERT_TRUE(h.doser->add(drivers::Reagent::base, 0.7, 10.0).has_value());
   // At pH 5.5 zinc takes the EDTA: the break at the sum, 11.00 mL of
   // titrant in the vessel (the first stage's included).
-  EXPECT_NEAR(steepest_ml(e, 7.0, 13.0, 0.002), 11.0, 0.01);
+  EXPECT_NEAR(two_stage_steepest_ml(e, 7.0, 13.0, 0.002), 11.0, 0.01);
   EXPECT_GT(e(10.5) - e(11.5), 50.0);
 }
 
@@ -101,7 +101,7 @@ TEST(TwoStages, TheRackPositionReportsEachMetalsTruth) {
                    "metals": [{"name": "Fe(III)", "conc_mol_per_l": 0.0009},
                               {"name": "Zn", "conc_mol_per_l": 0.0015}],
                    "blank_metal": "Zn"}}])json");
-  Host h(text);
+  TwoStageHost h(text);
   const PositionTruths t = h.bench->position_truths(2);
   ASSERT_EQ(t.metals_mol.size(), 2u);
   EXPECT_EQ(t.metals_mol[0].first, "Fe(III)");
