@@ -7,12 +7,21 @@ veq="$1"
 dir="$2"
 rm -rf "$dir" && mkdir -p "$dir"
 db="$dir/lab.sqlite"
+# Whether a command's whole output matches a pattern. (Not `cmd | grep -q`:
+# grep stops reading at its match, and under pipefail the writer's broken
+# pipe would fail the check when the output is long.)
+says() {
+  local pattern="$1" text
+  shift
+  text=$("$@")
+  grep -q -- "$pattern" <<<"$text"
+}
 "$veq" demo --db "$db" >/dev/null
 printf 'admin-pass-1\n' | "$veq" user add --db "$db" --name admin --role administrator 2>/dev/null
 printf 'admin-pass-1\nreviewer-pass\n' |
   "$veq" user add --db "$db" --name rev --role reviewer --by admin 2>/dev/null
 printf 'reviewer-pass\n' | "$veq" sign-off --db "$db" --run 1 --user rev 2>/dev/null
-"$veq" audit verify --db "$db" | grep -q "audit trail intact: 3 records"
+says "audit trail intact: 3 records" "$veq" audit verify --db "$db"
 # Methods change only by an administrator once the store has users, and the
 # change is recorded: no user, a reviewer, and a wrong password are refused.
 method="$dir/hardness.method"
@@ -24,8 +33,8 @@ refused "$veq" method import "$method" --db "$db" --user rev <<<"reviewer-pass"
 refused "$veq" method import "$method" --db "$db" --user admin <<<"wrong"
 printf 'admin-pass-1\n' | "$veq" method import "$method" --db "$db" --user admin \
   --reason "three replicates" 2>/dev/null | grep -q "recorded in the audit trail"
-"$veq" audit verify --db "$db" | grep -q "audit trail intact: 4 records"
-"$veq" audit list --db "$db" | grep -q "change method"
+says "audit trail intact: 4 records" "$veq" audit verify --db "$db"
+says "change method" "$veq" audit list --db "$db"
 # A reviewer chooses another evaluation of run 1 (a reason is required): the
 # run gets that evaluation's results as new records, the endpoint its own.
 "$veq" evaluate --db "$db" --run 1 --method gran >/dev/null
@@ -37,20 +46,20 @@ chosen=$(printf 'reviewer-pass\n' | "$veq" choose-evaluation --db "$db" --run 1 
 echo "$chosen" | grep -q "metal_concentration .* mmol/L (evaluation $evaluation)"
 gran_ml=$("$veq" show --db "$db" --run 1 | grep -A1 "evaluation $evaluation by gran" | tail -1 | awk '{print $2}')
 echo "$chosen" | grep -q "endpoint_volume *$gran_ml mL (evaluation $evaluation)"
-"$veq" show --db "$db" --run 1 | grep -q "results in use: those of evaluation $evaluation, chosen by rev"
-"$veq" show --db "$db" --run 1 | grep -q "metal_concentration .*(evaluation $evaluation, in use)"
+says "results in use: those of evaluation $evaluation, chosen by rev" "$veq" show --db "$db" --run 1
+says "metal_concentration .*(evaluation $evaluation, in use)" "$veq" show --db "$db" --run 1
 # The series' values stay as they were computed, and those resting on run 1
 # say that it now uses another evaluation.
-"$veq" series show --db "$db" --series 1 |
-  grep -q "run 1 now uses evaluation $evaluation (chosen by rev at .*: the Gran lines fit both sides); this value rests on evaluation [0-9]* and is not recomputed"
-"$veq" series show --db "$db" --series 1 --json | grep -q "\"evaluation_in_use\": $evaluation"
-"$veq" audit verify --db "$db" | grep -q "audit trail intact: 5 records"
+says "run 1 now uses evaluation $evaluation (chosen by rev at .*: the Gran lines fit both sides); this value rests on evaluation [0-9]* and is not recomputed" \
+  "$veq" series show --db "$db" --series 1
+says "\"evaluation_in_use\": $evaluation" "$veq" series show --db "$db" --series 1 --json
+says "audit trail intact: 5 records" "$veq" audit verify --db "$db"
 # A whole series signed off at once: one audit record per titration it rests on.
 refused "$veq" sign-off --db "$db" --series 1 --user rev <<<"wrong password"
 signed=$(printf 'reviewer-pass\n' | "$veq" sign-off --db "$db" --series 1 --user rev 2>/dev/null)
 count=$(echo "$signed" | sed -n 's/^series 1: \([0-9]*\) runs signed off$/\1/p')
 [ "$count" -ge 10 ] && [ "$(echo "$signed" | grep -c "signed off by rev")" -eq "$count" ]
-"$veq" audit verify --db "$db" | grep -q "audit trail intact: $((5 + count)) records"
+says "audit trail intact: $((5 + count)) records" "$veq" audit verify --db "$db"
 # An analyst's edit of the sign-off record, past the database's own refusal.
 sqlite3 "$db" "DROP TRIGGER audit_records_are_unchangeable;
                UPDATE audit_records SET new_value = 'rejected' WHERE sequence = 3;"
