@@ -217,7 +217,8 @@ TEST(PseudoTerminalBench, PulledCableIsDisconnected) {
   ASSERT_TRUE(bench);
   PseudoTerminalBenchHost host;
   ASSERT_NO_FATAL_FAILURE(host.connect(*bench));
-  ASSERT_TRUE(host.burette->status().has_value());
+  auto before = host.burette->status();
+  ASSERT_TRUE(before.has_value()) << before.error().describe();
   bench->disconnect();
   auto status = host.burette->status();
   ASSERT_FALSE(status.has_value());
