@@ -715,19 +715,23 @@ const char* kTwoStageScenario = R"json({
 
 /// The rack above with the method of docs/examples/iron-zinc-two-stage.method,
 /// the acid and base pumps, and a titer of 0.00990 mol/L determined before.
+/// Stores the example method `method_file` (under
+/// docs/examples/) in the bench's store, and a titer of 0.00990 mol/L determined before.
+void prepare_example_lab(SeriesBench& bench, const char* method_file) {
+  auto m = method::read_method_file(std::string(VEQ_SOURCE_DIR) + "/docs/examples/" + method_file);
+  EXPECT_TRUE(m.has_value()) << (m ? "" : m.error().message);
+  bench.prepare_lab(method::write_method(*m));
+  EXPECT_TRUE(method::record_titer(*bench.store, "EDTA 0.01 mol/L", {0.009901, 0.009899, 0.009900},
+                                   method::parse_utc("2026-12-02T07:00:00Z").value())
+                  .has_value());
+}
+
 struct TwoStageRack {
   SeriesBench bench{kTwoStageScenario};
   TwoStageRack() {
-    auto m = method::read_method_file(std::string(VEQ_SOURCE_DIR) +
-                                      "/docs/examples/iron-zinc-two-stage.method");
-    EXPECT_TRUE(m.has_value()) << (m ? "" : m.error().message);
-    bench.prepare_lab(method::write_method(*m));
+    prepare_example_lab(bench, "iron-zinc-two-stage.method");
     bench.instruments->pumps["doser 2"] = Pump{bench.doser.get(), drivers::Reagent::acid};
     bench.instruments->pumps["doser 3"] = Pump{bench.doser.get(), drivers::Reagent::base};
-    EXPECT_TRUE(method::record_titer(*bench.store, "EDTA 0.01 mol/L",
-                                     {0.009901, 0.009899, 0.009900},
-                                     method::parse_utc("2026-12-02T07:00:00Z").value())
-                    .has_value());
   }
   /// mg/L of a metal in a position's 50 mL, from the hidden truth.
   double true_mg_per_l(int position, const std::string& metal, double g_per_mol) {
@@ -922,16 +926,7 @@ const char* kOneCurveScenario = R"json({
 /// a titer of 0.00990 mol/L determined before.
 struct OneCurveRack {
   SeriesBench bench{kOneCurveScenario};
-  OneCurveRack() {
-    auto m = method::read_method_file(std::string(VEQ_SOURCE_DIR) +
-                                      "/docs/examples/copper-magnesium-one-curve.method");
-    EXPECT_TRUE(m.has_value()) << (m ? "" : m.error().message);
-    bench.prepare_lab(method::write_method(*m));
-    EXPECT_TRUE(method::record_titer(*bench.store, "EDTA 0.01 mol/L",
-                                     {0.009901, 0.009899, 0.009900},
-                                     method::parse_utc("2026-12-02T07:00:00Z").value())
-                    .has_value());
-  }
+  OneCurveRack() { prepare_example_lab(bench, "copper-magnesium-one-curve.method"); }
 };
 
 const std::string kOneCurveSeries =
