@@ -825,8 +825,14 @@ class Titration {
     const bool aborted = error.kind == ErrorKind::aborted;
     outcome_.status = aborted ? store::RunStatus::aborted : store::RunStatus::failed;
     outcome_.reason = error.describe();
-    if (!stopped)
-      outcome_.reason += "; stop command not confirmed: " + stopped.error().message;
+    if (!stopped) {
+      // The driver may have tried a stop already (a fault during a motion)
+      // and said so in the error: this is the second try.
+      const bool tried = outcome_.reason.find("stop not confirmed") != std::string::npos;
+      outcome_.reason +=
+          (tried ? "; a second stop not confirmed either: " : "; stop command not confirmed: ") +
+          stopped.error().message;
+    }
     say("run ended: " + outcome_.reason);
     finish(aborted ? RunState::aborted : RunState::failed, outcome_.reason);
     return outcome_;

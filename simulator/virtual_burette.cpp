@@ -66,6 +66,10 @@ bool VirtualBurette::moving() const {
   return motion_.kind != MotionKind::none && clock_.now() < motion_end(nullptr);
 }
 
+bool VirtualBurette::filling() const {
+  return motion_.kind == MotionKind::fill && moving();
+}
+
 double VirtualBurette::true_delivered_ml() const {
   double total = true_total_ml_;
   if (motion_.kind == MotionKind::dose) {

@@ -18,6 +18,9 @@ class VirtualBurette final : public VirtualDevice {
   double counter_ml() const;
   /// True while the motor moves (dose or fill) at the clock's present time.
   bool moving() const;
+  /// True while the motor refills the cylinder at the clock's present time
+  /// (moving() and not dosing).
+  bool filling() const;
   /// Switches a motor fault on (from after_s of device time; the present
   /// time for at once) or off (kind none) at run time. A motion under way
   /// stops when the fault begins.
