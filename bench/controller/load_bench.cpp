@@ -10,9 +10,11 @@
 // Measures wall time, series, titration runs and points stored, the peak
 // resident memory (getrusage ru_maxrss) and, after each round, the resident
 // memory, the heap in use (glibc mallinfo2: bytes handed out and not freed,
-// in every arena) and SQLite's own memory (sqlite3_memory_used: page caches
-// and statements) (memory must stay flat: what grows must be a cache with a
-// bound), and SQLite's busy/locked errors (must be 0:
+// in every arena, counting the blocks freed into each thread's cache), the
+// live C++ objects (counted by this program's operator new and delete) and
+// SQLite's own memory (sqlite3_memory_used: page caches and statements), and
+// the same once the threads have ended (memory must stay flat: what grows
+// must be a cache with a bound), and SQLite's busy/locked errors (must be 0:
 // the store sets a busy timeout). Then checks that no point is lost (per run:
 // points table == the run's point_count == what the observer saw; overall:
 // points table == every point observed) and that every instrument's first
@@ -38,6 +40,7 @@
 #include <fstream>
 #include <memory>
 #include <mutex>
+#include <new>
 #include <string>
 #include <thread>
 #include <vector>
@@ -81,10 +84,32 @@ long rss_kib() {
 }
 
 /// Heap in use now, KiB: what malloc has handed out and not had back, in
-/// every arena, small blocks and mmapped ones (glibc).
+/// every arena, small blocks and mmapped ones (glibc's mallinfo2 adds up
+/// every arena since glibc 2.10; its manual page still says otherwise). It
+/// also counts the blocks a thread has freed into its own cache (glibc's
+/// tcache: up to 7 blocks of each size to 1,032 bytes, some 200 KiB a
+/// thread at most), which glibc marks in use until the thread reuses them
+/// or ends.
 long heap_in_use_kib() {
   const struct mallinfo2 info = mallinfo2();
   return static_cast<long>((info.uordblks + info.hblkhd) / 1024);
+}
+
+// Live C++ objects: every block `operator new` hands out and `operator
+// delete` has not had back, counted in the usable size malloc gives it
+// (replaced below for this program). Unlike the heap in use it leaves out
+// freed blocks in the threads' caches and SQLite's own memory, so it grows
+// only when objects do.
+std::atomic<long long> g_live_bytes{0};
+std::atomic<long long> g_live_blocks{0};
+
+/// Live C++ objects now, KiB.
+long live_objects_kib() {
+  return static_cast<long>(g_live_bytes.load(std::memory_order_relaxed) / 1024);
+}
+/// Live C++ objects now, blocks.
+long long live_blocks() {
+  return g_live_blocks.load(std::memory_order_relaxed);
 }
 
 /// SQLite's own heap now, KiB (every connection of the process).
@@ -109,17 +134,24 @@ void replace_all(std::string& text, const std::string& from, const std::string& 
 /// instrument's own. Titers and calibrations are kept by titrant and
 /// electrode name: instruments sharing a file must not share those names, or
 /// one rack's samples would use another rack's titer and calibration.
+/// Gravimetric checks are kept by burette name: with "burette 1" on every
+/// rack, a value's record would name another rack's last check, and each
+/// series would read the checks of all racks (16 more a round).
 struct LabTexts {
   std::string calcium_method, nickel_method, series;
   std::string edta, calcium_standard;
+  std::string burette_1, burette_2;  ///< the rack's "burette 1" and "burette 2"
 };
 
 LabTexts lab_texts(int instrument) {
   char suffix[32];
   std::snprintf(suffix, sizeof suffix, " at bench %02d", instrument + 1);
-  LabTexts t{cli::demo::kCalciumMethod, cli::demo::kNickelMethod, cli::demo::kSeries, "", ""};
+  LabTexts t{
+      cli::demo::kCalciumMethod, cli::demo::kNickelMethod, cli::demo::kSeries, "", "", "", ""};
   t.edta = std::string("EDTA 0.01 mol/L") + suffix;
   t.calcium_standard = std::string("calcium standard 0.01 mol/L") + suffix;
+  t.burette_1 = std::string("burette 1") + suffix;
+  t.burette_2 = std::string("burette 2") + suffix;
   for (std::string* text : {&t.calcium_method, &t.nickel_method, &t.series}) {
     replace_all(*text, "calcium in drinking water",
                 std::string("calcium in drinking water") + suffix);
@@ -129,6 +161,8 @@ LabTexts lab_texts(int instrument) {
     replace_all(*text, "calcium standard 0.01 mol/L", t.calcium_standard);
     replace_all(*text, "calcium electrode 1", std::string("calcium electrode 1") + suffix);
     replace_all(*text, "Ferncombe Tuesday rack", std::string("Ferncombe Tuesday rack") + suffix);
+    replace_all(*text, "burette = burette 1", "burette = " + t.burette_1);
+    replace_all(*text, "burette = burette 2", "burette = " + t.burette_2);
   }
   return t;
 }
@@ -191,6 +225,8 @@ struct Round {
   std::int64_t observed_points = 0;
   long rss_kib_after = 0;
   long heap_kib_after = 0;
+  long live_kib_after = 0;
+  long long live_blocks_after = 0;
   long sqlite_kib_after = 0;
 };
 
@@ -248,6 +284,12 @@ void work(Instrument& in, double hours) {
       in.error = built.error().message;
       return;
     }
+    // The rack's burettes under the instrument's own names (see LabTexts).
+    auto& burettes = rack.instruments->burettes;
+    for (const auto& [rack_name, own_name] :
+         {std::pair{"burette 1", &in.texts.burette_1}, {"burette 2", &in.texts.burette_2}})
+      if (auto node = burettes.extract(rack_name))
+        burettes[*own_name] = node.mapped();
     CountingObserver observer;
     Round round;
     round.outcome =
@@ -269,6 +311,8 @@ void work(Instrument& in, double hours) {
     }
     round.rss_kib_after = rss_kib();
     round.heap_kib_after = heap_in_use_kib();
+    round.live_kib_after = live_objects_kib();
+    round.live_blocks_after = live_blocks();
     round.sqlite_kib_after = sqlite_kib();
     virtual_s = rack.clock.now_s();
     const bool completed = round.outcome.status == store::SeriesStatus::completed;
@@ -358,6 +402,37 @@ void remove_database(const std::string& path) {
 
 }  // namespace
 
+// The counting allocation functions (see g_live_bytes). The nothrow and
+// array forms of libstdc++ call these; the over-aligned forms go to
+// aligned_alloc and free and stay uncounted on both sides.
+void* operator new(std::size_t size) {
+  void* p = std::malloc(size == 0 ? 1 : size);
+  if (!p)
+    throw std::bad_alloc();
+  g_live_bytes.fetch_add(static_cast<long long>(malloc_usable_size(p)), std::memory_order_relaxed);
+  g_live_blocks.fetch_add(1, std::memory_order_relaxed);
+  return p;
+}
+void* operator new[](std::size_t size) {
+  return ::operator new(size);
+}
+void operator delete(void* p) noexcept {
+  if (!p)
+    return;
+  g_live_bytes.fetch_sub(static_cast<long long>(malloc_usable_size(p)), std::memory_order_relaxed);
+  g_live_blocks.fetch_sub(1, std::memory_order_relaxed);
+  std::free(p);
+}
+void operator delete[](void* p) noexcept {
+  ::operator delete(p);
+}
+void operator delete(void* p, std::size_t) noexcept {
+  ::operator delete(p);
+}
+void operator delete[](void* p, std::size_t) noexcept {
+  ::operator delete(p);
+}
+
 int main(int argc, char** argv) {
   const int count = argc > 1 ? std::atoi(argv[1]) : 16;
   const double hours = argc > 2 ? std::atof(argv[2]) : 24.0;
@@ -406,6 +481,13 @@ int main(int argc, char** argv) {
   const double wall_s =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - wall_start).count();
   const long peak_kib = peak_rss_kib();
+  // With every instrument's thread ended (their caches given back to the
+  // arenas), what is still in use is what the process keeps: the store, the
+  // bench's records of each round.
+  const long heap_after_kib = heap_in_use_kib();
+  const long live_after_kib = live_objects_kib();
+  const long long live_blocks_after = live_blocks();
+  const long sqlite_after_kib = sqlite_kib();
   // A statement that gives up with SQLITE_BUSY is not logged by SQLite
   // (the statement stays restartable), so lock errors are also counted from
   // what the series and their entries report.
@@ -447,11 +529,14 @@ int main(int argc, char** argv) {
   // Memory after each round: the largest resident size any instrument saw
   // on finishing its round k.
   std::vector<long> rss_after_round(most_rounds, 0), heap_after_round(most_rounds, 0),
-      sqlite_after_round(most_rounds, 0);
+      live_after_round(most_rounds, 0), sqlite_after_round(most_rounds, 0);
+  std::vector<long long> blocks_after_round(most_rounds, 0);
   for (const auto& in : instruments)
     for (std::size_t k = 0; k < in.rounds.size(); ++k) {
       rss_after_round[k] = std::max(rss_after_round[k], in.rounds[k].rss_kib_after);
       heap_after_round[k] = std::max(heap_after_round[k], in.rounds[k].heap_kib_after);
+      live_after_round[k] = std::max(live_after_round[k], in.rounds[k].live_kib_after);
+      blocks_after_round[k] = std::max(blocks_after_round[k], in.rounds[k].live_blocks_after);
       sqlite_after_round[k] = std::max(sqlite_after_round[k], in.rounds[k].sqlite_kib_after);
     }
 
@@ -506,10 +591,15 @@ int main(int argc, char** argv) {
   std::printf("| peak resident memory (ru_maxrss) | %.1f MiB |\n", peak_kib / 1024.0);
   for (std::size_t k = 0; k < rss_after_round.size(); ++k)
     std::printf(
-        "| after round %zu: resident / heap in use / of it SQLite | %.1f / %.1f / %.1f MiB "
-        "|\n",
+        "| after round %zu: resident / heap in use / live C++ objects (blocks) / SQLite | "
+        "%.1f / %.2f / %.2f (%lld) / %.2f MiB |\n",
         k + 1, rss_after_round[k] / 1024.0, heap_after_round[k] / 1024.0,
-        sqlite_after_round[k] / 1024.0);
+        live_after_round[k] / 1024.0, blocks_after_round[k], sqlite_after_round[k] / 1024.0);
+  std::printf(
+      "| after the threads ended: heap in use / live C++ objects (blocks) / SQLite | "
+      "%.2f / %.2f (%lld) / %.2f MiB |\n",
+      heap_after_kib / 1024.0, live_after_kib / 1024.0, live_blocks_after,
+      sqlite_after_kib / 1024.0);
   std::printf("| SQLite busy/locked errors | %ld |\n", busy_during_load);
   std::printf("| first series identical to the same series alone | %d of %d (%.1f s alone) |\n",
               identical, count, alone_s);
