@@ -31,9 +31,12 @@ struct PseudoTerminalBenchOptions {
 /// below are safe from any thread.
 class PseudoTerminalBench {
  public:
-  /// Opens both pseudo-terminals and starts serving. Errors: invalid_input for
-  /// a time scale that is not a positive finite number, io if the operating
-  /// system refuses a pseudo-terminal.
+  /// Opens both pseudo-terminals and starts serving. When it returns, both
+  /// lines are raw (no echo, no line editing) and their device side is held
+  /// open, so a host may open a port and write at once: bytes that arrive
+  /// before the serving thread reads wait in the line. Errors: invalid_input
+  /// for a time scale that is not a positive finite number, io if the
+  /// operating system refuses a pseudo-terminal.
   static Result<std::unique_ptr<PseudoTerminalBench>> start(
       const Scenario& scenario, const PseudoTerminalBenchOptions& options = {});
 

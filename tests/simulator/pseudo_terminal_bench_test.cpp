@@ -1,10 +1,12 @@
 // The virtual burette and electrode served over pseudo-terminals, reached
 // through the serial transport, DeviceLink and the real device clients; line
 // faults over the real line; and the veq-sim executable as a process.
+#include <fcntl.h>
 #include <gtest/gtest.h>
 #include <signal.h>
 #include <spawn.h>
 #include <sys/wait.h>
+#include <termios.h>
 #include <unistd.h>
 
 #include <chrono>
@@ -18,6 +20,7 @@
 #include "drivers/clock.hpp"
 #include "drivers/connection.hpp"
 #include "drivers/device_link.hpp"
+#include "drivers/native_protocol.hpp"
 #include "drivers/photometer_client.hpp"
 #include "drivers/profile_link.hpp"
 #include "drivers/sensor_client.hpp"
@@ -132,6 +135,45 @@ TEST(PseudoTerminalBench, DevicesAnswerThroughTheRealClientsOverSerialPorts) {
   });
   EXPECT_FALSE(moving);
   EXPECT_NEAR(truly_delivered_ml, 0.5, 1e-9);  // no systematic or random error in the demo
+  EXPECT_TRUE(bench->problems().empty());
+}
+
+TEST(PseudoTerminalBench, AHostMayWriteAtOnceEvenWhileTheServingThreadIsBusy) {
+  auto bench = start_bench(pseudo_terminal_bench_scenario());
+  ASSERT_TRUE(bench);
+  // The line is raw from start() on, before any host configures it: no echo,
+  // no line editing, no signals, nothing added to or taken from the bytes.
+  termios line{};
+  const int fd = ::open(bench->burette_port().c_str(), O_RDWR | O_NOCTTY | O_NONBLOCK | O_CLOEXEC);
+  ASSERT_GE(fd, 0) << bench->burette_port();
+  const int got = ::tcgetattr(fd, &line);
+  ::close(fd);
+  ASSERT_EQ(got, 0);
+  EXPECT_EQ(line.c_lflag & (ECHO | ECHONL | ICANON | ISIG | IEXTEN), 0u);
+  EXPECT_EQ(line.c_oflag & OPOST, 0u);
+  EXPECT_EQ(line.c_iflag & (ICRNL | INLCR | IGNCR | IXON | ISTRIP), 0u);
+
+  // The request goes out while the serving thread runs something else (this
+  // inspection), so it reaches the line before the bench reads: it waits in
+  // the line and is answered, alone and unaltered, once the thread is free.
+  auto opened = drivers::open_transport(bench->burette_connection());
+  ASSERT_TRUE(opened.has_value()) << opened.error().message;
+  drivers::Transport& host = **opened;
+  drivers::protocol::Message request;
+  request.word = "identify";
+  request.sequence = 1;
+  Result<void> sent;
+  bench->with_bench(
+      [&](SimulatedBench&) { sent = host.write_all(drivers::protocol::encode(request), 1000ms); });
+  ASSERT_TRUE(sent.has_value()) << sent.error().message;
+  // Not a speed limit: a bound so that a lost request fails rather than hangs.
+  auto line_read = host.read_line(5000ms);
+  ASSERT_TRUE(line_read.has_value()) << line_read.error().describe();
+  auto reply = drivers::protocol::parse(*line_read);
+  ASSERT_TRUE(reply.has_value()) << reply.error().message << " in '" << *line_read << "'";
+  EXPECT_EQ(reply->word, "ok");
+  EXPECT_EQ(reply->sequence, 1u);
+  EXPECT_EQ(reply->find("role").value_or(""), "burette");
   EXPECT_TRUE(bench->problems().empty());
 }
 
