@@ -6,6 +6,7 @@
 
 #include <QtCore/QMetaObject>
 
+#include "controller/cli/stop_after_interruption.hpp"
 #include "controller/series/series_file.hpp"
 #include "controller/series/weighing.hpp"
 #include "controller/store/sqlite_store.hpp"
@@ -215,6 +216,15 @@ void RackWorker::start_series(const series::Series& s, const std::string& databa
         return;
       }
     }
+    // A run cut off by a crash may have left a burette dosing: every burette
+    // is told to stop before anything else while a stop is owed.
+    auto stopped = cli::stop_burettes_after_interruption(*rack_->instruments(), db);
+    if (!stopped) {
+      fail("the series cannot start: " + stopped.error().message);
+      return;
+    }
+    for (const auto& line : *stopped)
+      emit_later([this, t = q(line)] { emit run_message(t); });
     // The clients must know their limits before a series (series_runner.hpp).
     for (const auto& a : rack_->identify_all()) {
       if (!a.ok) {

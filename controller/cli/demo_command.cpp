@@ -152,12 +152,14 @@ int run_demo(const DemoOptions& options) {
     std::cerr << "veq demo: " << built.error().message << "\n";
     return 2;
   }
-  if (auto stopped =
-          stop_burettes_after_interruption(*rack.instruments, store.interrupted_on_open());
-      !stopped) {
+  auto stopped = stop_burettes_after_interruption(*rack.instruments, store);
+  if (!stopped) {
     std::cerr << "veq demo: " << stopped.error().message << "\n";
     return 2;
   }
+  for (const auto& line : *stopped)
+    std::printf("%s\n", line.c_str());
+  std::fflush(stdout);
 
   // The lab's records before the rack starts: the methods, the titrants as
   // made up, and the calcium standard's titer from earlier in the week.

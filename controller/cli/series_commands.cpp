@@ -87,10 +87,12 @@ int run_series_file(const SeriesRunOptions& o) {
   SimulatedRack rack;
   if (auto built = rack.build(*scenario); !built)
     fail(built.error().message);
-  if (auto stopped =
-          stop_burettes_after_interruption(*rack.instruments, store->interrupted_on_open());
-      !stopped)
+  auto stopped = stop_burettes_after_interruption(*rack.instruments, *store);
+  if (!stopped)
     fail(stopped.error().message);
+  for (const auto& line : *stopped)
+    std::printf("%s\n", line.c_str());
+  std::fflush(stdout);
   series::SeriesStores stores{*store, *store, *store};
   PrintingSeriesObserver observer(o.verbose);
   std::printf("series '%s' on the simulated bench of '%s', virtual time; data in %s\n",

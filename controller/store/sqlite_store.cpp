@@ -350,6 +350,11 @@ BEGIN SELECT RAISE(ABORT, 'burette checks cannot be deleted'); END;
 ALTER TABLE runs ADD COLUMN owner TEXT NOT NULL DEFAULT '';
 ALTER TABLE series ADD COLUMN owner TEXT NOT NULL DEFAULT '';
 )sql",
+    // 7: a run marked interrupted owes its burette a stop until one is
+    // confirmed (runs marked by older versions were stopped by them).
+    R"sql(
+ALTER TABLE runs ADD COLUMN stop_owed INTEGER NOT NULL DEFAULT 0 CHECK (stop_owed IN (0, 1));
+)sql",
 };
 constexpr int kMigrationCount = static_cast<int>(sizeof kMigrations / sizeof kMigrations[0]);
 static_assert(kMigrationCount == kSchemaVersion, "one migration per schema version");
@@ -506,6 +511,30 @@ Result<void> SqliteStore::exec(const char* sql) {
   return {};
 }
 
+Result<std::vector<SqliteStore::OwedStop>> SqliteStore::stops_owed() {
+  const auto serialized = serialize();
+  Statement s(db_, "SELECT id, burette FROM runs WHERE stop_owed = 1 ORDER BY id");
+  std::vector<OwedStop> owed;
+  int rc = 0;
+  while ((rc = s.step()) == SQLITE_ROW)
+    owed.push_back({s.integer(0), s.text(1)});
+  if (rc != SQLITE_DONE)
+    return storage_error("cannot read the stops owed after interrupted runs");
+  return owed;
+}
+
+Result<void> SqliteStore::stop_delivered(std::int64_t run_id) {
+  const auto serialized = serialize();
+  Statement s(db_, "UPDATE runs SET stop_owed = 0 WHERE id = ?1 AND stop_owed = 1");
+  s.bind(1, run_id);
+  if (s.step() != SQLITE_DONE)
+    return storage_error("cannot record the stop delivered after run " + std::to_string(run_id));
+  if (sqlite3_changes(db_) != 1)
+    return make_error(ErrorKind::not_found,
+                      "run " + std::to_string(run_id) + " owes no stop to its burette");
+  return {};
+}
+
 Result<int> SqliteStore::schema_version() {
   const auto serialized = serialize();
   Statement s(db_, "PRAGMA user_version");
@@ -635,7 +664,7 @@ Result<std::unique_ptr<SqliteStore>> SqliteStore::open(const std::string& path) 
     return dead_runs.error();
   for (const std::int64_t id : *dead_runs) {
     Statement s(db,
-                "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3 "
+                "UPDATE runs SET status = ?1, end_reason = ?2, finished_utc = ?3, stop_owed = 1 "
                 "WHERE id = ?4 AND status = ?5");
     s.bind(1, static_cast<int>(RunStatus::interrupted))
         .bind(2, std::string("interrupted: veq stopped before the run ended"))

@@ -4,6 +4,7 @@
 #include <memory>
 #include <mutex>
 #include <string>
+#include <vector>
 
 #include "controller/store/method_store.hpp"
 #include "controller/store/run_store.hpp"
@@ -14,7 +15,7 @@ struct sqlite3;
 namespace veq::store {
 
 /// Schema version this build writes; older files are migrated on open.
-inline constexpr int kSchemaVersion = 6;
+inline constexpr int kSchemaVersion = 7;
 
 /// Default database path when none is given: $VEQ_DB, else ./veq.sqlite.
 std::string default_database_path();
@@ -88,6 +89,21 @@ class SqliteStore final : public RunStore, public MethodStore, public SeriesStor
 
   /// Runs still marked running when the store was opened, now marked interrupted.
   int interrupted_on_open() const { return interrupted_on_open_; }
+
+  /// A run cut off by a crash may have left its burette dosing. Marking it
+  /// interrupted also records that a stop is owed to its burette, in the
+  /// same statement; the record stays until stop_delivered() says the
+  /// burette confirmed a stop. So a start that dies between marking and
+  /// stopping, or a burette that cannot be reached, leaves the stop owed
+  /// for the next start.
+  struct OwedStop {
+    std::int64_t run_id = 0;
+    std::string burette;  ///< the run's burette as recorded (BuretteClient::describe())
+  };
+  /// Every stop still owed, oldest run first.
+  Result<std::vector<OwedStop>> stops_owed();
+  /// The burette of run_id has confirmed a stop since the run was cut off.
+  Result<void> stop_delivered(std::int64_t run_id);
   const std::string& path() const { return path_; }
   /// Schema version of the open file.
   Result<int> schema_version();

@@ -6,8 +6,11 @@
 #  - every point veq acknowledged ("point <run> <index>", printed only after
 #    the store committed it) is in the points table;
 #  - a run cut off mid-way is still "running" (1) on disk, and the next start
-#    marks it interrupted (5) and, before anything else, tells the burette
-#    to stop ("burette 1 told to stop after an interrupted run").
+#    marks it interrupted (5) with a stop owed to its burette and, before
+#    anything else, tells the burette to stop ("burette 1 told to stop after
+#    an interrupted run"), which settles the stop owed;
+#  - a start killed after marking the run but before the stop leaves the stop
+#    owed on disk, and the start after it sends it first.
 # Usage: kill_test.sh <veq> <scratch folder> [rounds] [seed]
 set -euo pipefail
 veq="$1"
@@ -21,7 +24,7 @@ kills_in_run=0
 kills_between=0
 points_checked=0
 stops_seen=0
-marked_unstopped=0
+owed_carried=0
 ended_first=0
 kills_before_open=0
 pending_run=""  # a run killed mid-way, not yet seen marked interrupted
@@ -44,12 +47,22 @@ for round in $(seq 1 "$rounds"); do
   delay_ms=$((20 + (RANDOM * 32768 + RANDOM) % (span_ms - 19)))
   out="$dir/round-$round.out"
   # A start killed between marking the run interrupted and telling the
-  # burette to stop: the mark is on disk, the stop was never sent, and no
-  # later start will send it (counted and reported, not a failure here).
+  # burette to stop: the mark is on disk with the stop still owed, and this
+  # start must send it first.
+  owed_before=0
+  if [ -f "$db" ] && [ "$(sql "SELECT count(*) FROM sqlite_master WHERE name = 'runs'")" = "1" ]; then
+    owed_before=$(sql "SELECT count(*) FROM runs WHERE stop_owed = 1")
+  fi
   if [ -n "$pending_run" ] && [ "$(sql "SELECT status FROM runs WHERE id = $pending_run")" = "5" ]; then
-    echo "round $round: run $pending_run was marked interrupted by a start killed before its stop"
-    marked_unstopped=$((marked_unstopped + 1))
-    pending_run=""
+    if [ "$owed_before" != "0" ]; then
+      echo "round $round: run $pending_run was marked interrupted by a start killed before its stop; the stop is still owed"
+      owed_carried=$((owed_carried + 1))
+    else
+      # The stop was confirmed (the owed mark is cleared only then), but the
+      # start was killed before it printed so.
+      echo "round $round: run $pending_run was marked and its burette stopped by a start killed before its first line"
+      pending_run=""
+    fi
   fi
   "$veq" demo --db "$db" --print-points >"$out" 2>"$dir/round-$round.err" &
   pid=$!
@@ -61,21 +74,28 @@ for round in $(seq 1 "$rounds"); do
     ended_first=$((ended_first + 1))
   fi
 
-  # The previous round's cut-off run: this start must have stopped the
-  # burette first and marked the run interrupted, if it got past opening
-  # the store (the header line is printed after both).
-  if [ -n "$pending_run" ]; then
+  # The previous round's cut-off run, or a stop still owed: this start must
+  # have stopped the burette first and marked the run interrupted, if it got
+  # past opening the store (the header line is printed after both), and no
+  # stop is owed any more.
+  if [ -n "$pending_run" ] || [ "$owed_before" != "0" ]; then
     if grep -q '^veq demo:' "$out"; then
       first=$(head -n 1 "$out")
       if [ "$first" != "burette 1 told to stop after an interrupted run" ]; then
-        fail "after run $pending_run was cut off, the first line was '$first'"
+        fail "after run ${pending_run:-?} was cut off, the first line was '$first'"
       else
         stops_seen=$((stops_seen + 1))
       fi
-      status=$(sql "SELECT status FROM runs WHERE id = $pending_run")
-      [ "$status" = "5" ] || fail "run $pending_run has status '$status', not interrupted (5)"
+      if [ -n "$pending_run" ]; then
+        status=$(sql "SELECT status FROM runs WHERE id = $pending_run")
+        [ "$status" = "5" ] || fail "run $pending_run has status '$status', not interrupted (5)"
+      fi
+      owed_after=$(sql "SELECT count(*) FROM runs WHERE stop_owed = 1")
+      [ "$owed_after" = "0" ] || fail "$owed_after stops still owed after the burettes were stopped"
       pending_run=""
     fi
+  elif grep -q 'told to stop' "$out"; then
+    fail "a stop was sent with no run cut off and none owed"
   fi
 
   check=$(sql "PRAGMA integrity_check")
@@ -138,7 +158,7 @@ printf 'rounds: %d, veq ended before its kill in %d; kills during a run: %d, bet
   "$rounds" "$ended_first" "$kills_in_run" "$((kills_between - ended_first))"
 printf 'kills before the store was opened, an earlier run still left running: %d\n' "$kills_before_open"
 printf 'burette stops seen first at the next start: %d\n' "$stops_seen"
-printf 'runs marked interrupted by a start killed before it sent the stop: %d\n' "$marked_unstopped"
+printf 'starts that found a stop owed by an earlier start killed before sending it: %d\n' "$owed_carried"
 printf 'acknowledged points checked: %d; database: %d runs (%d interrupted), %d points\n' \
   "$points_checked" "$runs_total" "$interrupted_total" "$points_total"
 printf 'failures: %d; duration %.1f s\n' "$failures" "$(echo "$ended - $started" | bc)"

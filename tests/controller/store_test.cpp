@@ -38,6 +38,7 @@ NewRun sample_run() {
   r.sample_volume_ml = 25.0;
   r.titrant_name = "EDTA";
   r.titrant_conc_mol_per_l = 0.05;
+  r.burette = "burette 1 on /dev/ttyUSB3";
   return r;
 }
 
@@ -137,6 +138,25 @@ TEST(SqliteStore, RunningRunsOfADeadProcessAreMarkedInterruptedOnNextOpen) {
   auto run = (*store)->load_run(1);
   EXPECT_EQ(run->status, RunStatus::interrupted);
   EXPECT_EQ(run->point_count, 1);
+  // The mark brings a stop owed to the run's burette, kept on disk until a
+  // stop is confirmed: a start that dies before it sends the stop, or one
+  // that cannot reach the burette, leaves it for the next.
+  auto owed = (*store)->stops_owed();
+  ASSERT_TRUE(owed.has_value());
+  ASSERT_EQ(owed->size(), 1u);
+  EXPECT_EQ((*owed)[0].run_id, 1);
+  EXPECT_EQ((*owed)[0].burette, sample_run().burette);
+  store->reset();
+  auto again = SqliteStore::open(path);
+  EXPECT_EQ((*again)->interrupted_on_open(), 0);  // marked once only
+  ASSERT_EQ((*again)->stops_owed()->size(), 1u);  // still owed
+  EXPECT_TRUE((*again)->stop_delivered(1).has_value());
+  EXPECT_TRUE((*again)->stops_owed()->empty());
+  auto twice = (*again)->stop_delivered(1);
+  ASSERT_FALSE(twice.has_value());
+  EXPECT_EQ(twice.error().kind, ErrorKind::not_found);
+  again->reset();
+  EXPECT_TRUE((*SqliteStore::open(path))->stops_owed()->empty());
 }
 
 TEST(SqliteStore, RunsOfALiveProcessStayRunningWhenTheFileIsOpenedAgain) {
