@@ -85,7 +85,7 @@ SeriesView::SeriesView(RackWorker& worker, std::function<std::string()> database
       "position. Unit: mL (aliquot), g (weighed) or 'g from balance'. Positions: 11, 12 or "
       "11-12.");
 
-  auto button = [this](const QString& text, const QString& keys, const QString& tip) {
+  auto button = [](const QString& text, const QString& keys, const QString& tip) {
     auto* b = new QPushButton(text);
     if (!keys.isEmpty())
       b->setShortcut(QKeySequence(keys));
