@@ -84,12 +84,13 @@ long rss_kib() {
 }
 
 /// Heap in use now, KiB: what malloc has handed out and not had back, in
-/// every arena, small blocks and mmapped ones (glibc's mallinfo2 adds up
-/// every arena since glibc 2.10; its manual page still says otherwise). It
-/// also counts the blocks a thread has freed into its own cache (glibc's
-/// tcache: up to 7 blocks of each size to 1,032 bytes, some 200 KiB a
-/// thread at most), which glibc marks in use until the thread reuses them
-/// or ends.
+/// every arena, small blocks and mmapped ones (glibc 2.36's mallinfo2 adds
+/// up every arena, whatever its manual page's BUGS section says: four
+/// threads keeping 1,000 blocks of 1,000 bytes each raise it by 4.05 MB, the
+/// sum malloc_stats shows over the five arenas). It also counts the blocks
+/// a thread has freed into its own cache (glibc's tcache: up to 7 blocks of
+/// each size to 1,032 bytes, 235 KiB a thread at most), which glibc
+/// marks in use until the thread reuses them or ends.
 long heap_in_use_kib() {
   const struct mallinfo2 info = mallinfo2();
   return static_cast<long>((info.uordblks + info.hblkhd) / 1024);
@@ -469,6 +470,8 @@ int main(int argc, char** argv) {
   }
   const long rss_before_kib = rss_kib();
   const long heap_before_kib = heap_in_use_kib();
+  const long long live_before_bytes = g_live_bytes.load();
+  const long long live_blocks_before = live_blocks();
 
   const auto wall_start = std::chrono::steady_clock::now();
   {
@@ -487,6 +490,10 @@ int main(int argc, char** argv) {
   const long heap_after_kib = heap_in_use_kib();
   const long live_after_kib = live_objects_kib();
   const long long live_blocks_after = live_blocks();
+  // What the threads left behind beside the stores and instruments made
+  // before them: the bench's records of every round (Round).
+  const long long records_bytes = g_live_bytes.load() - live_before_bytes;
+  const long long records_blocks = live_blocks_after - live_blocks_before;
   const long sqlite_after_kib = sqlite_kib();
   // A statement that gives up with SQLITE_BUSY is not logged by SQLite
   // (the statement stays restartable), so lock errors are also counted from
@@ -600,6 +607,13 @@ int main(int argc, char** argv) {
       "%.2f / %.2f (%lld) / %.2f MiB |\n",
       heap_after_kib / 1024.0, live_after_kib / 1024.0, live_blocks_after,
       sqlite_after_kib / 1024.0);
+  std::printf(
+      "| of it the bench's records of each round (left by the threads) | %.2f MiB, %lld blocks "
+      "(%.2f KiB a series) |\n",
+      static_cast<double>(records_bytes) / (1024.0 * 1024.0), records_blocks,
+      series_count > 0
+          ? static_cast<double>(records_bytes) / 1024.0 / static_cast<double>(series_count)
+          : 0.0);
   std::printf("| SQLite busy/locked errors | %ld |\n", busy_during_load);
   std::printf("| first series identical to the same series alone | %d of %d (%.1f s alone) |\n",
               identical, count, alone_s);
