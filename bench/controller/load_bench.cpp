@@ -137,7 +137,8 @@ void replace_all(std::string& text, const std::string& from, const std::string& 
 /// one rack's samples would use another rack's titer and calibration.
 /// Gravimetric checks are kept by burette name: with "burette 1" on every
 /// rack, a value's record would name another rack's last check, and each
-/// series would read the checks of all racks (16 more a round).
+/// series would read the checks of all racks (a record more a round for
+/// each rack).
 struct LabTexts {
   std::string calcium_method, nickel_method, series;
   std::string edta, calcium_standard;
