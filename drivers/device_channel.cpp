@@ -116,10 +116,11 @@ Result<protocol::Message> DeviceChannel::next_unsolicited(std::chrono::milliseco
     unsolicited_.pop_front();
     return m;
   }
-  const Duration deadline = clock_.now() + timeout;
+  // On the line's time base (see DeviceLink::exchange).
+  const auto deadline = transport_.deadline_now() + timeout;
   while (true) {
     const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - clock_.now());
+        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - transport_.deadline_now());
     if (left.count() <= 0) {
       return make_error(ErrorKind::timeout, describe() + " (streamed reading): nothing within " +
                                                 std::to_string(timeout.count()) + " ms");

@@ -42,7 +42,9 @@ struct ReconnectPolicy {
 
 /// Tuning of a request/reply exchange.
 struct LinkOptions {
-  /// Deadline for a reply (ms). 2 s is far above a device's normal answer time
+  /// Deadline for a reply (ms), on the transport's time base
+  /// (Transport::deadline_now()): real time on a serial or TCP line even when
+  /// the run's clock is scaled. 2 s is far above a device's normal answer time
   /// (well under 50 ms on a serial line) yet short enough to stop quickly.
   std::chrono::milliseconds reply_timeout{2000};
   /// Reopening a closed line (off by default).

@@ -24,10 +24,12 @@ Result<protocol::Message> DeviceLink::exchange(protocol::Message request) {
   if (auto sent = transport_.write_all(protocol::encode(request), options_.reply_timeout); !sent) {
     return make_error(sent.error().kind, where() + ": " + sent.error().message);
   }
-  const Duration deadline = clock_.now() + options_.reply_timeout;
+  // On the line's time base, as the transport counts `left`: the run's clock
+  // may be scaled (a 50x demo), the line and the host's scheduler are not.
+  const auto deadline = transport_.deadline_now() + options_.reply_timeout;
   while (true) {
     const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - clock_.now());
+        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - transport_.deadline_now());
     if (left.count() <= 0) {
       return make_error(
           ErrorKind::timeout,

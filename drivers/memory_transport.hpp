@@ -40,6 +40,8 @@ class MemoryTransport final : public Transport {
   Result<void> write_all(std::string_view bytes, std::chrono::milliseconds timeout) override;
   Result<std::string> read_line(std::chrono::milliseconds timeout) override;
   void discard_input() override { inbox_.clear(); }
+  /// The run's clock, which read_line() advances while it waits.
+  std::chrono::nanoseconds deadline_now() const override { return clock_.now(); }
   Result<void> set_line_end(std::string_view terminator) override;
   std::string line_end() const override { return line_end_; }
   /// Succeeds unless refuse_reopen() said otherwise; the line starts empty.

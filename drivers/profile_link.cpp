@@ -34,10 +34,11 @@ Result<protocol::Message> ProfileLink::run(const profile::Operation& op,
     return make_error(sent.error().kind, where + ": " + sent.error().message);
   const std::string command = bytes->substr(0, bytes->size() - profile_.command_end.size());
   bool echo_seen = !profile_.echo;
-  const Duration deadline = clock_.now() + reply_timeout_;
+  // On the line's time base (see DeviceLink::exchange).
+  const auto deadline = transport_.deadline_now() + reply_timeout_;
   while (true) {
     const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - clock_.now());
+        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - transport_.deadline_now());
     if (left.count() <= 0) {
       return make_error(ErrorKind::timeout, where + ": no reply within " +
                                                 std::to_string(reply_timeout_.count()) + " ms");

@@ -27,6 +27,12 @@ Result<std::string> ReopeningTransport::read_line(std::chrono::milliseconds time
   return inner_->read_line(timeout);
 }
 
+std::chrono::nanoseconds ReopeningTransport::deadline_now() const {
+  if (!inner_)
+    return std::chrono::steady_clock::now().time_since_epoch();
+  return inner_->deadline_now();
+}
+
 void ReopeningTransport::discard_input() {
   if (inner_)
     inner_->discard_input();

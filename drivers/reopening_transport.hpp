@@ -27,6 +27,8 @@ class ReopeningTransport final : public Transport {
   Result<void> write_all(std::string_view bytes, std::chrono::milliseconds timeout) override;
   Result<std::string> read_line(std::chrono::milliseconds timeout) override;
   void discard_input() override;
+  /// The open line's; real time while closed (every call fails at once then).
+  std::chrono::nanoseconds deadline_now() const override;
   Result<void> set_line_end(std::string_view terminator) override;
   std::string line_end() const override { return line_end_; }
   /// Closes the old line first (a serial port is released before it is

@@ -69,6 +69,7 @@ class LoggingTransport final : public Transport {
   Result<void> write_all(std::string_view bytes, std::chrono::milliseconds timeout) override;
   Result<std::string> read_line(std::chrono::milliseconds timeout) override;
   void discard_input() override;
+  std::chrono::nanoseconds deadline_now() const override { return inner_->deadline_now(); }
   Result<void> set_line_end(std::string_view terminator) override;
   std::string line_end() const override { return inner_->line_end(); }
   Result<void> reopen() override;

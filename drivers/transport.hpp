@@ -28,6 +28,17 @@ class Transport {
   virtual Result<std::string> read_line(std::chrono::milliseconds timeout) = 0;
   /// Drops bytes already received but not yet read (after a timeout, say).
   virtual void discard_input() = 0;
+  /// Now on the time base the timeouts of write_all() and read_line() count
+  /// in (ns since an origin of the transport's choosing): real steady-clock
+  /// time on a line to a device (serial port, TCP), the run's clock in
+  /// memory. A link that waits for one reply over several read_line() calls
+  /// counts what is left of its deadline on this time base, never on a
+  /// scaled run clock: at 50x, 300 ms of run time is only 6 ms of real time,
+  /// which one stall of a loaded machine's scheduler outlasts. Every
+  /// transport says which (no default): one that wraps another hands on the
+  /// inner one's, so a wrapper cannot silently switch a memory line to real
+  /// time.
+  virtual std::chrono::nanoseconds deadline_now() const = 0;
 
   /// Sets the bytes that end a received line (see drivers/line_framing.hpp):
   /// "\n" by default, as veq's native protocol wants; a device profile sets

@@ -85,6 +85,7 @@ class CountingLine final : public veq::drivers::Transport {
     return inner_.read_line(t);
   }
   void discard_input() override { inner_.discard_input(); }
+  std::chrono::nanoseconds deadline_now() const override { return inner_.deadline_now(); }
 
  private:
   veq::drivers::Transport& inner_;

@@ -33,6 +33,7 @@ class RecordingTransport final : public drivers::Transport {
     return inner_.read_line(t);
   }
   void discard_input() override { inner_.discard_input(); }
+  std::chrono::nanoseconds deadline_now() const override { return inner_.deadline_now(); }
   std::vector<std::string> sent;
 
  private:

@@ -2,7 +2,10 @@
 // scripted device whose replies are written out byte for byte.
 #include <gtest/gtest.h>
 
+#include <chrono>
+#include <cstdint>
 #include <deque>
+#include <string>
 
 #include "drivers/burette_client.hpp"
 #include "drivers/device_link.hpp"
@@ -150,6 +153,60 @@ TEST_F(Fixture, ClosedLineIsDisconnected) {
   auto r = link.call(m);
   ASSERT_FALSE(r.has_value());
   EXPECT_EQ(r.error().kind, ErrorKind::disconnected);
+}
+
+/// A run clock far ahead of the line: every reading is a second later, as a
+/// 1000x demo's clock is after one millisecond of real time.
+class LeapingClock final : public Clock {
+ public:
+  Duration now() const override { return now_ += std::chrono::seconds(1); }
+  void sleep_for(Duration d) override { now_ += d; }
+
+ private:
+  mutable Duration now_{0};
+};
+
+/// A line in real time (like a serial port) whose device has already sent
+/// the scripted lines: each read takes the next at once.
+class AnsweredRealLine final : public Transport {
+ public:
+  std::deque<std::string> lines;
+  std::string describe() const override { return "test:answered"; }
+  Result<void> write_all(std::string_view, std::chrono::milliseconds) override { return {}; }
+  Result<std::string> read_line(std::chrono::milliseconds timeout) override {
+    if (lines.empty())
+      return make_error(ErrorKind::timeout, "nothing within " + std::to_string(timeout.count()));
+    std::string line = lines.front();
+    lines.pop_front();
+    return line;
+  }
+  void discard_input() override { lines.clear(); }
+  std::chrono::nanoseconds deadline_now() const override {
+    return std::chrono::steady_clock::now().time_since_epoch();
+  }
+};
+
+TEST(DeviceLinkDeadline, CountsTheReplyTimeoutOnTheLineNotOnAScaledRunClock) {
+  // The reply is there at once, behind a late answer to an earlier request;
+  // the run's clock meanwhile leaps seconds ahead. The 300 ms deadline is
+  // real time on a real line, so neither the leaps nor the stale line may
+  // end the exchange (counted on the run's clock, it timed out at once).
+  LeapingClock clock;
+  AnsweredRealLine line;
+  for (const std::uint32_t sequence : {7u, 1u}) {
+    std::string bytes = protocol::encode(protocol::ok_reply(sequence));
+    bytes.pop_back();  // read_line() hands a line over without its end
+    line.lines.push_back(bytes);
+  }
+  LinkOptions options;
+  options.reply_timeout = std::chrono::milliseconds(300);
+  DeviceLink link(line, clock, "burette", options);
+  protocol::Message request;
+  request.word = "ping";
+  auto reply = link.call(request);
+  ASSERT_TRUE(reply.has_value()) << reply.error().describe();
+  EXPECT_EQ(reply->sequence, 1u);
+  EXPECT_TRUE(line.lines.empty());
 }
 
 }  // namespace

@@ -120,6 +120,7 @@ TEST(LineEnd, ATransportThatCannotChangeItSaysSo) {
     Result<void> write_all(std::string_view, std::chrono::milliseconds) override { return {}; }
     Result<std::string> read_line(std::chrono::milliseconds) override { return std::string(); }
     void discard_input() override {}
+    std::chrono::nanoseconds deadline_now() const override { return {}; }
   } fixed;
   EXPECT_TRUE(fixed.set_line_end("\n").has_value());
   auto r = fixed.set_line_end("\r");

@@ -192,9 +192,9 @@ TEST(PseudoTerminalBench, SilentElectrodeIsATimeoutAndTheLineRecovers) {
             std::string::npos)
       << reading.error().message;
   EXPECT_NE(reading.error().message.find("('read')"), std::string::npos);
-  // The host waited for its reply rather than giving up at once. (DeviceLink
-  // counts the deadline on the run's scaled clock and passes what is left, so
-  // the real wait may fall short of 150 ms by the scaled time the request took.)
+  // The host waited for its reply rather than giving up at once: 150 ms of
+  // real time, as DeviceLink counts the deadline on the line's time base, not
+  // on the run's scaled clock (where 150 ms are 3 ms of real time at 50x).
   EXPECT_GE(waited, 100ms);
 
   bench->set_electrode_fault({FaultKind::none, 0.0});
