@@ -145,12 +145,7 @@ struct CampaignRun {
   std::vector<std::pair<double, double>> fills, doses;
 
   explicit CampaignRun(const simulator::Scenario& scenario) {
-    bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
-    burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
-    sensor_link =
-        std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "electrode");
-    burette = std::make_unique<drivers::BuretteClient>(*burette_link);
-    sensor = std::make_unique<drivers::PotentialSensorClient>(*sensor_link);
+    testing::connect_simulated_bench(*this, scenario, clock);
     store = std::move(store::SqliteStore::open(":memory:")).value();
     sample.sample_id = "campaign";
     sample.sample_volume_ml = scenario.sample.volume_ml;

@@ -6,6 +6,7 @@
 #include <gtest/gtest.h>
 
 #include <memory>
+#include <string>
 #include <utility>
 
 #include "controller/store/sqlite_store.hpp"
@@ -22,6 +23,22 @@ inline simulator::Scenario demo_scenario() {
   return *s;
 }
 
+/// Builds a simulated bench on `clock` and the host's burette and electrode
+/// clients over its memory lines, into the members of the same names of
+/// `rack` (bench, burette_link, sensor_link, burette, sensor), which must be
+/// declared after the clock so that they are destroyed before it.
+template <class Rack>
+void connect_simulated_bench(Rack& rack, const simulator::Scenario& scenario, drivers::Clock& clock,
+                             const std::string& burette_name = "burette") {
+  rack.bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
+  rack.burette_link =
+      std::make_unique<drivers::DeviceLink>(rack.bench->burette_line(), clock, burette_name);
+  rack.sensor_link =
+      std::make_unique<drivers::DeviceLink>(rack.bench->electrode_line(), clock, "electrode");
+  rack.burette = std::make_unique<drivers::BuretteClient>(*rack.burette_link);
+  rack.sensor = std::make_unique<drivers::PotentialSensorClient>(*rack.sensor_link);
+}
+
 struct Trial {
   simulator::Scenario scenario;
   drivers::VirtualClock clock;
@@ -34,12 +51,7 @@ struct Trial {
   TitrationMethod method;
 
   explicit Trial(simulator::Scenario s) : scenario(std::move(s)) {
-    bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
-    burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette");
-    sensor_link =
-        std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "electrode");
-    burette = std::make_unique<drivers::BuretteClient>(*burette_link);
-    sensor = std::make_unique<drivers::PotentialSensorClient>(*sensor_link);
+    connect_simulated_bench(*this, scenario, clock);
     store = std::move(store::SqliteStore::open(":memory:")).value();
     sample.sample_id = "trial";
     sample.sample_volume_ml = scenario.sample.volume_ml;

@@ -13,6 +13,7 @@
 #include "controller/store/sqlite_store.hpp"
 #include "simulator/bench.hpp"
 #include "simulator/builtin_scenarios.hpp"
+#include "tests/controller/simulated_trial.hpp"
 
 namespace veq::cli {
 namespace {
@@ -63,12 +64,7 @@ struct OneBurette {
   OneBurette() {
     auto scenario =
         simulator::parse_scenario(simulator::builtin_scenario("demo_calcium"), "demo").value();
-    bench = std::make_unique<simulator::SimulatedBench>(scenario, clock);
-    burette_link = std::make_unique<drivers::DeviceLink>(bench->burette_line(), clock, "burette 1");
-    sensor_link =
-        std::make_unique<drivers::DeviceLink>(bench->electrode_line(), clock, "electrode");
-    burette = std::make_unique<drivers::BuretteClient>(*burette_link);
-    sensor = std::make_unique<drivers::PotentialSensorClient>(*sensor_link);
+    controller::testing::connect_simulated_bench(*this, scenario, clock, "burette 1");
     instruments = std::make_unique<series::SeriesInstruments>(
         series::SeriesInstruments{clock, *sensor, {}, {}});
     instruments->burettes["burette 1"] = burette.get();
