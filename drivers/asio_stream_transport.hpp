@@ -72,9 +72,7 @@ class AsioStreamTransport final : public Transport {
   }
 
   std::string describe() const override { return description_; }
-  std::chrono::nanoseconds deadline_now() const override {
-    return std::chrono::steady_clock::now().time_since_epoch();
-  }
+  std::chrono::nanoseconds deadline_now() const override { return real_time_now(); }
 
   Result<void> write_all(std::string_view bytes, std::chrono::milliseconds timeout) override {
     // A request line fits the kernel's buffer, so it normally goes out in one

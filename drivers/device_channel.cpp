@@ -119,8 +119,7 @@ Result<protocol::Message> DeviceChannel::next_unsolicited(std::chrono::milliseco
   // On the line's time base (see DeviceLink::exchange).
   const auto deadline = transport_.deadline_now() + timeout;
   while (true) {
-    const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - transport_.deadline_now());
+    const auto left = transport_.time_left(deadline);
     if (left.count() <= 0) {
       return make_error(ErrorKind::timeout, describe() + " (streamed reading): nothing within " +
                                                 std::to_string(timeout.count()) + " ms");

@@ -28,8 +28,7 @@ Result<protocol::Message> DeviceLink::exchange(protocol::Message request) {
   // may be scaled (a 50x demo), the line and the host's scheduler are not.
   const auto deadline = transport_.deadline_now() + options_.reply_timeout;
   while (true) {
-    const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - transport_.deadline_now());
+    const auto left = transport_.time_left(deadline);
     if (left.count() <= 0) {
       return make_error(
           ErrorKind::timeout,

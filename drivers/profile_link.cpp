@@ -37,8 +37,7 @@ Result<protocol::Message> ProfileLink::run(const profile::Operation& op,
   // On the line's time base (see DeviceLink::exchange).
   const auto deadline = transport_.deadline_now() + reply_timeout_;
   while (true) {
-    const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - transport_.deadline_now());
+    const auto left = transport_.time_left(deadline);
     if (left.count() <= 0) {
       return make_error(ErrorKind::timeout, where + ": no reply within " +
                                                 std::to_string(reply_timeout_.count()) + " ms");

@@ -29,7 +29,7 @@ Result<std::string> ReopeningTransport::read_line(std::chrono::milliseconds time
 
 std::chrono::nanoseconds ReopeningTransport::deadline_now() const {
   if (!inner_)
-    return std::chrono::steady_clock::now().time_since_epoch();
+    return real_time_now();
   return inner_->deadline_now();
 }
 

@@ -39,6 +39,15 @@ class Transport {
   /// inner one's, so a wrapper cannot silently switch a memory line to real
   /// time.
   virtual std::chrono::nanoseconds deadline_now() const = 0;
+  /// What is left until `deadline` (a deadline_now() value plus a timeout),
+  /// in whole milliseconds: the timeout to hand to the next read_line().
+  std::chrono::milliseconds time_left(std::chrono::nanoseconds deadline) const {
+    return std::chrono::duration_cast<std::chrono::milliseconds>(deadline - deadline_now());
+  }
+  /// Real steady-clock time: the deadline_now() of a line to a device.
+  static std::chrono::nanoseconds real_time_now() {
+    return std::chrono::steady_clock::now().time_since_epoch();
+  }
 
   /// Sets the bytes that end a received line (see drivers/line_framing.hpp):
   /// "\n" by default, as veq's native protocol wants; a device profile sets

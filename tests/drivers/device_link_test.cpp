@@ -181,9 +181,7 @@ class AnsweredRealLine final : public Transport {
     return line;
   }
   void discard_input() override { lines.clear(); }
-  std::chrono::nanoseconds deadline_now() const override {
-    return std::chrono::steady_clock::now().time_since_epoch();
-  }
+  std::chrono::nanoseconds deadline_now() const override { return real_time_now(); }
 };
 
 TEST(DeviceLinkDeadline, CountsTheReplyTimeoutOnTheLineNotOnAScaledRunClock) {
